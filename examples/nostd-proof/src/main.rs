@@ -1,0 +1,47 @@
+//! Links the model math into a bare-metal binary. If anything in `plateau`'s
+//! dependency tree needed std or alloc, this would fail to build: there is no
+//! std for the target and no global allocator here.
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+use plateau::model::step;
+use plateau::{Baranyi, Gompertz, GrowthCurve, Logistic, Population, Richards, ZwieteringLogistic};
+
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo<'_>) -> ! {
+    loop {}
+}
+
+fn exercise() -> f32 {
+    let k = black_box(1.5_f32);
+    let mut acc = 0.0;
+    if let Ok(c) = Logistic::from_midpoint(k, 0.7, 8.0) {
+        acc += c.value(black_box(5.0)) + c.time_to_reach(0.9).unwrap_or(0.0) + c.lag_h();
+    }
+    if let Ok(c) = ZwieteringLogistic::new(k * 3.0, 1.1, 2.0) {
+        acc += c.value(4.0) + c.lag_h();
+    }
+    if let Ok(g) = Gompertz::new(k * 3.0, 1.1, 2.0) {
+        if let Ok(p) = Population::new(g, 0.01) {
+            acc += p.value(4.0) + p.inflection().time_h;
+        }
+    }
+    if let Ok(c) = Richards::new(k * 3.0, 1.1, 2.0, 0.5) {
+        acc += c.time_to_reach(2.0).unwrap_or(0.0);
+    }
+    if let Ok(c) = Baranyi::new(k * 3.0, 1.1, 2.0) {
+        acc += c.value(4.0) + c.time_to_reach(1.0).unwrap_or(0.0) + c.inflection().value;
+    }
+    acc += step::logistic(0.1, black_box(0.25), k, 0.7).value;
+    acc += step::richards(0.1, 0.25, k, 0.7, 0.5).d_shape;
+    acc += step::baranyi(0.1, 0.25, k, 0.7, 0.1).1;
+    acc
+}
+
+/// Entry point for the linker; never returns.
+#[unsafe(no_mangle)]
+pub extern "C" fn _start() -> ! {
+    let _ = black_box(exercise());
+    loop {}
+}
