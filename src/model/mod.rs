@@ -1,4 +1,4 @@
-//! Growth-curve families, written once over [`Real`] so the same formulas run
+//! Growth-curve families, written once over [`Real`](crate::Real) so the same formulas run
 //! in `f32` on the device and in `f64` for host references.
 //!
 //! * [`Logistic`]: the plain logistic y = K / (1 + B e^(−r t)) on the measured
