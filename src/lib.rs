@@ -32,9 +32,11 @@
 #![cfg_attr(docsrs, feature(doc_cfg))]
 
 mod error;
+mod estimator;
 mod math;
 
 pub use error::Error;
+pub use estimator::{Estimate, Estimator, EstimatorConfig, Measured, Outcome, Rejection};
 pub use math::Real;
 pub mod model;
 

@@ -1,0 +1,320 @@
+//! Weighted Levenberg–Marquardt refit of the logistic to the history buffer.
+//!
+//! Parameters θ = (ln K, ln r, `t_m`): logs keep capacity and rate positive and
+//! make the problem better conditioned (Bastin & Dochain 1990 recommend
+//! well-scaled parameters for on-line bioprocess estimation [memory]). The
+//! model is y = K·s(r (t − `t_m`)) with the logistic sigmoid s, computed without
+//! overflow on either side.
+//!
+//! The 3×3 normal equations are Jacobi-scaled (unit diagonal) before the
+//! Cholesky solve, which keeps f32 accurate when the parameters' scales differ
+//! by orders of magnitude, and makes the damping λ·diag(A) of Marquardt (1963)
+//! scale-free.
+
+use super::config::EstimatorConfig;
+use super::history::History;
+use crate::Real;
+
+/// A symmetric 3×3 matrix, stored as its upper triangle
+/// `[a00, a01, a02, a11, a12, a22]`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub(crate) struct Sym3<T>(pub(crate) [T; 6]);
+
+impl<T: Real> Sym3<T> {
+    pub(crate) const fn zero() -> Self {
+        Self([T::ZERO; 6])
+    }
+
+    pub(crate) fn get(&self, i: usize, j: usize) -> T {
+        let (i, j) = if i <= j { (i, j) } else { (j, i) };
+        let k = match (i, j) {
+            (0, 0) => 0,
+            (0, 1) => 1,
+            (0, 2) => 2,
+            (1, 1) => 3,
+            (1, 2) => 4,
+            _ => 5,
+        };
+        self.0[k]
+    }
+
+    /// Adds w·g·gᵀ.
+    fn add_outer(&mut self, g: &[T; 3], w: T) {
+        let a = &mut self.0;
+        a[0] += w * g[0] * g[0];
+        a[1] += w * g[0] * g[1];
+        a[2] += w * g[0] * g[2];
+        a[3] += w * g[1] * g[1];
+        a[4] += w * g[1] * g[2];
+        a[5] += w * g[2] * g[2];
+    }
+
+    /// gᵀ·A·g.
+    pub(crate) fn quadratic(&self, g: &[T; 3]) -> T {
+        let mut q = T::ZERO;
+        for i in 0..3 {
+            for j in 0..3 {
+                q += g[i] * self.get(i, j) * g[j];
+            }
+        }
+        q
+    }
+
+    pub(crate) fn scaled(&self, s: T) -> Self {
+        let mut out = *self;
+        for a in &mut out.0 {
+            *a *= s;
+        }
+        out
+    }
+
+    pub(crate) fn is_finite(&self) -> bool {
+        self.0.iter().all(|a| a.is_finite())
+    }
+
+    /// Cholesky factor L (lower, row-major 3×3) of `self + damping·I`, or
+    /// `None` when not positive definite.
+    fn cholesky(&self, damping: T) -> Option<[[T; 3]; 3]> {
+        let mut l = [[T::ZERO; 3]; 3];
+        for i in 0..3 {
+            for j in 0..=i {
+                let mut sum = self.get(i, j);
+                if i == j {
+                    sum += damping;
+                }
+                for k in 0..j {
+                    sum -= l[i][k] * l[j][k];
+                }
+                if i == j {
+                    if !(sum > T::ZERO) || !sum.is_finite() {
+                        return None;
+                    }
+                    l[i][i] = sum.sqrt();
+                } else {
+                    l[i][j] = sum / l[j][j];
+                }
+            }
+        }
+        Some(l)
+    }
+
+    /// Solves `(self + damping·I)·x = b` on the Jacobi-scaled system.
+    pub(crate) fn solve(&self, b: &[T; 3], damping: T) -> Option<[T; 3]> {
+        let d = self.jacobi()?;
+        let scaled = self.jacobi_scaled(&d);
+        let l = scaled.cholesky(damping)?;
+        let rhs = [b[0] / d[0], b[1] / d[1], b[2] / d[2]];
+        let u = cholesky_solve(&l, &rhs);
+        let x = [u[0] / d[0], u[1] / d[1], u[2] / d[2]];
+        x.iter().all(|v| v.is_finite()).then_some(x)
+    }
+
+    /// The inverse, or `None` when not positive definite.
+    pub(crate) fn inverse(&self) -> Option<Self> {
+        let d = self.jacobi()?;
+        let l = self.jacobi_scaled(&d).cholesky(T::ZERO)?;
+        let mut cols = [[T::ZERO; 3]; 3];
+        for (k, col) in cols.iter_mut().enumerate() {
+            let mut e = [T::ZERO; 3];
+            e[k] = T::ONE;
+            *col = cholesky_solve(&l, &e);
+        }
+        let mut out = Self::zero();
+        let mut idx = 0;
+        for i in 0..3 {
+            for j in i..3 {
+                // Symmetrise against rounding.
+                let v = (cols[j][i] + cols[i][j]) * T::HALF;
+                out.0[idx] = v / (d[i] * d[j]);
+                idx += 1;
+            }
+        }
+        (out.is_finite() && out.0[0] > T::ZERO && out.0[3] > T::ZERO && out.0[5] > T::ZERO)
+            .then_some(out)
+    }
+
+    fn jacobi(&self) -> Option<[T; 3]> {
+        let d = [self.0[0], self.0[3], self.0[5]];
+        if d.iter().all(|&x| x > T::ZERO && x.is_finite()) {
+            Some([d[0].sqrt(), d[1].sqrt(), d[2].sqrt()])
+        } else {
+            None
+        }
+    }
+
+    fn jacobi_scaled(&self, d: &[T; 3]) -> Self {
+        let mut out = Self::zero();
+        let mut idx = 0;
+        for i in 0..3 {
+            for j in i..3 {
+                out.0[idx] = self.get(i, j) / (d[i] * d[j]);
+                idx += 1;
+            }
+        }
+        out
+    }
+}
+
+fn cholesky_solve<T: Real>(l: &[[T; 3]; 3], b: &[T; 3]) -> [T; 3] {
+    let mut y = [T::ZERO; 3];
+    for i in 0..3 {
+        let mut s = b[i];
+        for k in 0..i {
+            s -= l[i][k] * y[k];
+        }
+        y[i] = s / l[i][i];
+    }
+    let mut x = [T::ZERO; 3];
+    for i in (0..3).rev() {
+        let mut s = y[i];
+        for k in i + 1..3 {
+            s -= l[k][i] * x[k];
+        }
+        x[i] = s / l[i][i];
+    }
+    x
+}
+
+/// The logistic sigmoid 1/(1 + e^(−x)), without overflow for any finite x.
+pub(crate) fn sigmoid<T: Real>(x: T) -> T {
+    if x >= T::ZERO {
+        T::ONE / (T::ONE + (-x).exp())
+    } else {
+        let e = x.exp();
+        e / (T::ONE + e)
+    }
+}
+
+/// Model value averaged over a slot whose reading times have variance
+/// `spread_h2` around `time_h`: f(t̄) + ½ f''(t̄) var(t) (second-order Taylor
+/// expansion), with f'' = r² f (1 − s)(1 − 2s) for the logistic. Without it,
+/// merging readings along the convex early curve biases the rate low.
+pub(crate) fn slot_model<T: Real>(theta: &[T; 3], time_h: T, spread_h2: T) -> (T, [T; 3]) {
+    let (f, g) = model(theta, time_h);
+    if spread_h2 > T::ZERO {
+        let r = theta[1].exp();
+        let s = sigmoid(r * (time_h - theta[2]));
+        let curvature = r * r * f * (T::ONE - s) * (T::ONE - T::TWO * s);
+        (f + T::HALF * curvature * spread_h2, g)
+    } else {
+        (f, g)
+    }
+}
+
+/// Model value above blank and its gradient in θ = (ln K, ln r, `t_m`) at
+/// `time_h` (hours since the origin).
+pub(crate) fn model<T: Real>(theta: &[T; 3], time_h: T) -> (T, [T; 3]) {
+    let k = theta[0].exp();
+    let r = theta[1].exp();
+    let x = r * (time_h - theta[2]);
+    let s = sigmoid(x);
+    let q = s * (T::ONE - s);
+    let f = k * s;
+    (f, [f, k * q * x, -k * r * q])
+}
+
+/// Bounds that keep the parameters physical and the state finite:
+/// ln K within ±80 (any unit a user may pick), r between 1e-4 and 1e3 per hour,
+/// midpoint within ±1e6 h of the origin.
+pub(crate) fn clamp_theta<T: Real>(theta: &mut [T; 3]) {
+    let big = T::from_f64(80.0);
+    theta[0] = theta[0].clamp_to(-big, big);
+    theta[1] = theta[1].clamp_to(T::from_f64(-9.2), T::from_f64(6.9));
+    let span = T::from_f64(1.0e6);
+    theta[2] = theta[2].clamp_to(-span, span);
+}
+
+/// The result of accumulating the normal equations at θ.
+pub(crate) struct Normal<T> {
+    /// `JᵀWJ` plus the prior's information.
+    pub(crate) info: Sym3<T>,
+    /// JᵀW·residual plus the prior's pull.
+    pub(crate) gradient: [T; 3],
+    /// Weighted sum of squares of the data (prior excluded), each slot's share
+    /// capped at (3 × scale)² for a robust noise scale.
+    pub(crate) sse: T,
+}
+
+/// Prior on ln K: centred at ln(2 × the largest reading) with standard deviation 2 (a factor
+/// of e² ≈ 7.4 either way). It only matters while the data cannot place the
+/// capacity (before the inflection), where it keeps the fit off the ridge
+/// K → ∞; once the plateau is in sight its information is negligible.
+pub(crate) struct Prior<T> {
+    pub(crate) ln_k_mean: T,
+    pub(crate) ln_k_info: T,
+}
+
+/// Weights and residuals for one pass. `scale` is the current noise scale,
+/// used for the Huber down-weighting of residuals beyond 3 standard deviations
+/// (Huber 1964), so a spike that slipped into the buffer cannot drag the fit.
+pub(crate) fn accumulate<T: Real, const N: usize>(
+    history: &History<T, N>,
+    config: &EstimatorConfig<T>,
+    theta: &[T; 3],
+    prior: &Prior<T>,
+    scale: T,
+    weights: &mut [T; N],
+) -> Normal<T> {
+    let huber = T::from_f64(3.0);
+    let mut info = Sym3::zero();
+    let mut gradient = [T::ZERO; 3];
+    let mut sse = T::ZERO;
+    for (i, weight) in weights.iter_mut().enumerate().take(history.len()) {
+        let (t, y, c) = history.slot(i);
+        let (f, g) = slot_model(theta, t, history.spread_h2(i));
+        let sd = config.noise_sd(f);
+        let mut w = T::from_u32(u32::from(c)) / (sd * sd);
+        let e = y - f;
+        let z2 = e * e * w;
+        let z = z2.sqrt() / scale;
+        // The scale estimate caps each slot's share at (3 × scale)², so a
+        // spike in the buffer cannot inflate the noise scale and widen the
+        // gate for the next spike.
+        sse += z2.min(huber * huber * scale * scale);
+        if z > huber {
+            w *= huber / z;
+        }
+        *weight = w;
+        info.add_outer(&g, w);
+        for k in 0..3 {
+            gradient[k] += w * g[k] * e;
+        }
+    }
+    let dk = prior.ln_k_mean - theta[0];
+    info.0[0] += prior.ln_k_info;
+    gradient[0] += prior.ln_k_info * dk;
+    Normal {
+        info,
+        gradient,
+        sse,
+    }
+}
+
+/// Weighted sum of squares at θ with fixed weights, prior included.
+pub(crate) fn objective<T: Real, const N: usize>(
+    history: &History<T, N>,
+    theta: &[T; 3],
+    prior: &Prior<T>,
+    weights: &[T; N],
+) -> T {
+    let mut sse = T::ZERO;
+    for (i, &w) in weights.iter().enumerate().take(history.len()) {
+        let (t, y, _) = history.slot(i);
+        let e = y - slot_model(theta, t, history.spread_h2(i)).0;
+        sse += w * e * e;
+    }
+    let dk = prior.ln_k_mean - theta[0];
+    sse + prior.ln_k_info * dk * dk
+}
+
+/// Largest step per iteration in each parameter (ln K, ln r, and `t_m` in units
+/// of 1/r): a trust region that keeps one bad linearisation from throwing the
+/// fit far away.
+pub(crate) fn limit_step<T: Real>(step: &mut [T; 3], theta: &[T; 3]) {
+    let one = T::ONE;
+    step[0] = step[0].clamp_to(-one, one);
+    step[1] = step[1].clamp_to(-one, one);
+    let tm_limit = T::from_f64(3.0) / theta[1].exp();
+    step[2] = step[2].clamp_to(-tm_limit, tm_limit);
+}
