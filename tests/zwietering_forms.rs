@@ -38,6 +38,9 @@ fn ref_richards(a: f64, mu: f64, lag: f64, nu: f64, t: f64) -> f64 {
     a * (1.0 + nu * (1.0 + nu).exp() * (c * (lag - t)).exp()).powf(-1.0 / nu)
 }
 
+/// A form behind the trait.
+type Curve = Box<dyn GrowthCurve<f64>>;
+
 /// Every form with every parameter set, boxed behind the trait, with its
 /// parameters and the independent reference.
 struct Case {
@@ -45,7 +48,7 @@ struct Case {
     a: f64,
     mu: f64,
     lag: f64,
-    curve: Box<dyn GrowthCurve<f64>>,
+    curve: Curve,
     reference: Box<dyn Fn(f64) -> f64>,
 }
 
@@ -169,7 +172,7 @@ fn inflection_points_of_logistic_and_gompertz() {
     // FACTS.md (Zwietering et al. 1990): logistic inflection y = A/2 at
     // λ + A/(2 μm); Gompertz y = A/e at λ + A/(e μm).
     for &(a, mu, lag) in &PARAMS {
-        let checks: [(Box<dyn GrowthCurve<f64>>, f64, f64, &str); 2] = [
+        let checks: [(Curve, f64, f64, &str); 2] = [
             (
                 Box::new(ZwieteringLogistic::new(a, mu, lag).unwrap()),
                 lag + a / (2.0 * mu),
