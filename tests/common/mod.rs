@@ -66,11 +66,21 @@ pub fn argmax(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, tol: f64) -> f64
 }
 
 /// Tolerance on a time recovered by inverting a curve at a level it reached at
-/// `t_h`: the rounding in the forward value (a few ulps of the level and of the
-/// exponent's argument, whose size is `time_scale_h` times a rate) divided by
-/// the slope there, plus a few ulps of the time itself. `slope` is the local
-/// slope (any reasonable estimate: it only scales the bound).
-pub fn inverse_time_tolerance(t_h: f64, time_scale_h: f64, level: f64, slope: f64) -> f64 {
+/// `t_h`: the rounding in the forward value divided by the slope there, plus a
+/// few ulps of the time itself.
+///
+/// The forward value carries a few ulps of the level itself, plus a few ulps
+/// of `value_scale`, the size of the intermediate terms it is formed from when
+/// the formula subtracts them (zero when it does not). `time_scale_h` is the
+/// size of the times inside exponents (midpoint, lag, t). `slope` only scales
+/// the bound.
+pub fn inverse_time_tolerance(
+    t_h: f64,
+    time_scale_h: f64,
+    level: f64,
+    value_scale: f64,
+    slope: f64,
+) -> f64 {
     let ulps = 256.0 * EPS;
-    ulps * (t_h.abs() + time_scale_h) + ulps * level.abs() / slope.abs()
+    ulps * (t_h.abs() + time_scale_h) + ulps * (level.abs() + value_scale) / slope.abs()
 }
