@@ -154,7 +154,10 @@ pub fn baranyi<T: Real>(x: T, dt_h: T, capacity: T, mu_max_per_h: T, q: T) -> (T
     let sig_z = sigmoid(z);
     let d_tau_d_mu = dt_h * sig_z;
     let d_tau_d_q = (sig_z - sigmoid(ln_q)) / q;
-    let s = logistic(x, tau, capacity, T::ONE);
+    // The logistic step depends on rate and step only through their product,
+    // so a step of 1 h at rate τ is the step over τ and its `d_rate` is ∂x'/∂τ.
+    // (With rate 1 over τ hours, `d_rate` would be τ ∂x'/∂τ instead.)
+    let s = logistic(x, T::ONE, capacity, tau);
     let transition = Transition {
         value: s.value,
         d_value: s.d_value,

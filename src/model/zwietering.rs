@@ -129,7 +129,15 @@ impl<T: Real> GrowthCurve<T> for ZwieteringLogistic<T> {
         if level <= T::ZERO || level >= self.asymptote {
             return Err(Error::LevelNotReached);
         }
-        Ok(self.lag_h + (T::TWO - (self.asymptote / level - T::ONE).ln()) / self.g())
+        let ratio = self.asymptote / level;
+        // ln(A/y − 1); for a subnormal level A/y overflows, and then
+        // ln(A/y − 1) = ln A − ln y to within rounding.
+        let ln_odds = if ratio.is_finite() {
+            (ratio - T::ONE).ln()
+        } else {
+            self.asymptote.ln() - level.ln()
+        };
+        Ok(self.lag_h + (T::TWO - ln_odds) / self.g())
     }
     zwietering_common!();
 }
@@ -289,9 +297,16 @@ impl<T: Real> GrowthCurve<T> for Richards<T> {
             return Err(Error::LevelNotReached);
         }
         let nu = self.shape;
-        // (y/A)^(−ν) − 1 = ν e^(1+ν) e^(c (λ − t))
-        let lhs = (-nu * (level / self.asymptote).ln()).exp_m1();
-        Ok(self.lag_h - (lhs.ln() - nu.ln() - T::ONE - nu) / self.c())
+        // (y/A)^(−ν) − 1 = ν e^(1+ν) e^(c (λ − t)). With m = −ν ln(y/A) > 0 the
+        // left side is e^m − 1, whose log is m + ln(1 − e^(−m)): formed that
+        // way for m > 1 so a tiny level cannot overflow e^m.
+        let m = -nu * (level / self.asymptote).ln();
+        let ln_lhs = if m > T::ONE {
+            m + (-(-m).exp()).ln_1p()
+        } else {
+            m.exp_m1().ln()
+        };
+        Ok(self.lag_h - (ln_lhs - nu.ln() - T::ONE - nu) / self.c())
     }
     zwietering_common!();
 }
