@@ -371,7 +371,10 @@ mod f32_backend {
         if x == 0.0 || x == f32::INFINITY {
             return x;
         }
-        F32Ext::sqrt(x)
+        // micromath's sqrt is off by up to 6 %; one Newton step
+        // y ← (y + x/y)/2 squares the relative error (to about 0.2 %).
+        let y = F32Ext::sqrt(x);
+        0.5 * (y + x / y)
     }
     #[inline]
     pub(super) fn ln_1p(x: f32) -> f32 {

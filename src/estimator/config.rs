@@ -72,7 +72,7 @@ impl<T: Real> EstimatorConfig<T> {
             ceiling: T::INFINITY,
             gate_sigma: T::from_f64(4.0),
             dilution_ratio: T::from_f64(0.8),
-            capacity_max_rel_sd: T::from_f64(0.3),
+            capacity_max_rel_sd: T::from_f64(0.15),
             min_growth_ratio: T::from_f64(2.0),
             max_rate_per_h: T::from_f64(3.0),
             max_consecutive_rejections: 4,
@@ -172,7 +172,7 @@ impl<T: Real> EstimatorConfig<T> {
     }
 
     /// Largest relative standard deviation at which a capacity is published
-    /// (default 0.3); above it `Estimate::capacity` is `None`.
+    /// (default 0.15); above it `Estimate::capacity` is `None`.
     ///
     /// # Errors
     /// Must be finite and > 0.

@@ -6,8 +6,8 @@
 //! model is y = K·s(r (t − `t_m`)) with the logistic sigmoid s, computed without
 //! overflow on either side.
 //!
-//! The 3×3 normal equations are Jacobi-scaled (unit diagonal) before the
-//! Cholesky solve, which keeps f32 accurate when the parameters' scales differ
+//! The 3×3 normal equations are Jacobi-scaled (unit diagonal) before an
+//! `LDLᵀ` solve, which keeps f32 accurate when the parameters' scales differ
 //! by orders of magnitude, and makes the damping λ·diag(A) of Marquardt (1963)
 //! scale-free.
 
@@ -73,39 +73,42 @@ impl<T: Real> Sym3<T> {
         self.0.iter().all(|a| a.is_finite())
     }
 
-    /// Cholesky factor L (lower, row-major 3×3) of `self + damping·I`, or
-    /// `None` when not positive definite.
-    fn cholesky(&self, damping: T) -> Option<[[T; 3]; 3]> {
+    /// `LDLᵀ` factors of `self + damping·I`: unit lower-triangular L (row-major)
+    /// and the diagonal D, or `None` when not positive definite. No square
+    /// roots, so an approximate `sqrt` (the `fast-math` backend) cannot
+    /// spoil the solve.
+    fn ldl(&self, damping: T) -> Option<([[T; 3]; 3], [T; 3])> {
         let mut l = [[T::ZERO; 3]; 3];
-        for i in 0..3 {
-            for j in 0..=i {
-                let mut sum = self.get(i, j);
-                if i == j {
-                    sum += damping;
-                }
+        let mut d = [T::ZERO; 3];
+        for j in 0..3 {
+            let mut dj = self.get(j, j) + damping;
+            for k in 0..j {
+                dj -= l[j][k] * l[j][k] * d[k];
+            }
+            if !(dj > T::ZERO) || !dj.is_finite() {
+                return None;
+            }
+            d[j] = dj;
+            l[j][j] = T::ONE;
+            for i in j + 1..3 {
+                let mut v = self.get(i, j);
                 for k in 0..j {
-                    sum -= l[i][k] * l[j][k];
+                    v -= l[i][k] * l[j][k] * d[k];
                 }
-                if i == j {
-                    if !(sum > T::ZERO) || !sum.is_finite() {
-                        return None;
-                    }
-                    l[i][i] = sum.sqrt();
-                } else {
-                    l[i][j] = sum / l[j][j];
-                }
+                l[i][j] = v / dj;
             }
         }
-        Some(l)
+        Some((l, d))
     }
 
-    /// Solves `(self + damping·I)·x = b` on the Jacobi-scaled system.
+    /// Solves `(self + damping·D²)·x = b`, D² = diag(self): Marquardt's
+    /// scale-free damping, computed on the Jacobi-scaled system.
     pub(crate) fn solve(&self, b: &[T; 3], damping: T) -> Option<[T; 3]> {
         let d = self.jacobi()?;
         let scaled = self.jacobi_scaled(&d);
-        let l = scaled.cholesky(damping)?;
+        let factors = scaled.ldl(damping)?;
         let rhs = [b[0] / d[0], b[1] / d[1], b[2] / d[2]];
-        let u = cholesky_solve(&l, &rhs);
+        let u = ldl_solve(&factors, &rhs);
         let x = [u[0] / d[0], u[1] / d[1], u[2] / d[2]];
         x.iter().all(|v| v.is_finite()).then_some(x)
     }
@@ -113,12 +116,12 @@ impl<T: Real> Sym3<T> {
     /// The inverse, or `None` when not positive definite.
     pub(crate) fn inverse(&self) -> Option<Self> {
         let d = self.jacobi()?;
-        let l = self.jacobi_scaled(&d).cholesky(T::ZERO)?;
+        let factors = self.jacobi_scaled(&d).ldl(T::ZERO)?;
         let mut cols = [[T::ZERO; 3]; 3];
         for (k, col) in cols.iter_mut().enumerate() {
             let mut e = [T::ZERO; 3];
             e[k] = T::ONE;
-            *col = cholesky_solve(&l, &e);
+            *col = ldl_solve(&factors, &e);
         }
         let mut out = Self::zero();
         let mut idx = 0;
@@ -156,22 +159,22 @@ impl<T: Real> Sym3<T> {
     }
 }
 
-fn cholesky_solve<T: Real>(l: &[[T; 3]; 3], b: &[T; 3]) -> [T; 3] {
+fn ldl_solve<T: Real>((l, d): &([[T; 3]; 3], [T; 3]), b: &[T; 3]) -> [T; 3] {
     let mut y = [T::ZERO; 3];
     for i in 0..3 {
         let mut s = b[i];
         for k in 0..i {
             s -= l[i][k] * y[k];
         }
-        y[i] = s / l[i][i];
+        y[i] = s;
     }
     let mut x = [T::ZERO; 3];
     for i in (0..3).rev() {
-        let mut s = y[i];
+        let mut s = y[i] / d[i];
         for k in i + 1..3 {
             s -= l[k][i] * x[k];
         }
-        x[i] = s / l[i][i];
+        x[i] = s;
     }
     x
 }
@@ -231,8 +234,8 @@ pub(crate) struct Normal<T> {
     pub(crate) info: Sym3<T>,
     /// JᵀW·residual plus the prior's pull.
     pub(crate) gradient: [T; 3],
-    /// Weighted sum of squares of the data (prior excluded), each slot's share
-    /// capped at (3 × scale)² for a robust noise scale.
+    /// Robust weighted sum of squares of the data (prior excluded): see
+    /// [`robust_sse`].
     pub(crate) sse: T,
 }
 
@@ -255,23 +258,20 @@ pub(crate) fn accumulate<T: Real, const N: usize>(
     prior: &Prior<T>,
     scale: T,
     weights: &mut [T; N],
+    z2: &mut [T; N],
 ) -> Normal<T> {
     let huber = T::from_f64(3.0);
     let mut info = Sym3::zero();
     let mut gradient = [T::ZERO; 3];
-    let mut sse = T::ZERO;
-    for (i, weight) in weights.iter_mut().enumerate().take(history.len()) {
+    let n = history.len();
+    for (i, weight) in weights.iter_mut().enumerate().take(n) {
         let (t, y, c) = history.slot(i);
         let (f, g) = slot_model(theta, t, history.spread_h2(i));
         let sd = config.noise_sd(f);
         let mut w = T::from_u32(u32::from(c)) / (sd * sd);
         let e = y - f;
-        let z2 = e * e * w;
-        let z = z2.sqrt() / scale;
-        // The scale estimate caps each slot's share at (3 × scale)², so a
-        // spike in the buffer cannot inflate the noise scale and widen the
-        // gate for the next spike.
-        sse += z2.min(huber * huber * scale * scale);
+        z2[i] = e * e * w;
+        let z = z2[i].sqrt() / scale;
         if z > huber {
             w *= huber / z;
         }
@@ -284,11 +284,45 @@ pub(crate) fn accumulate<T: Real, const N: usize>(
     let dk = prior.ln_k_mean - theta[0];
     info.0[0] += prior.ln_k_info;
     gradient[0] += prior.ln_k_info * dk;
+    let sse = robust_sse(&mut z2[..n]);
     Normal {
         info,
         gradient,
         sse,
     }
+}
+
+/// A robust residual sum of squares from the squared standardised residuals
+/// `z2` (reordered in place): each share is capped at 9 × s₀², where
+/// s₀² = median(z2) / 0.4549 is the median-based scale (0.4549 is the median
+/// of a χ² with one degree of freedom, so s₀² ≈ 1 for a right noise model).
+/// Spikes in the buffer then cannot inflate the noise scale — and with it the
+/// gate for the next spike — and the cap costs under 1 % of efficiency on
+/// clean data (E[min(Z², 9)] = 0.995 for normal Z).
+pub(crate) fn robust_sse<T: Real>(z2: &mut [T]) -> T {
+    let n = z2.len();
+    if n == 0 {
+        return T::ZERO;
+    }
+    // Insertion sort: at most N²/2 compares on a stack slice, no allocation.
+    for i in 1..n {
+        let mut j = i;
+        while j > 0 && z2[j - 1] > z2[j] {
+            z2.swap(j - 1, j);
+            j -= 1;
+        }
+    }
+    let median = if n % 2 == 1 {
+        z2[n / 2]
+    } else {
+        (z2[n / 2 - 1] + z2[n / 2]) * T::HALF
+    };
+    let cap = T::from_f64(9.0 / 0.4549) * median;
+    let mut sse = T::ZERO;
+    for &v in z2.iter() {
+        sse += v.min(cap);
+    }
+    sse / T::from_f64(0.995)
 }
 
 /// Weighted sum of squares at θ with fixed weights, prior included.
@@ -317,4 +351,35 @@ pub(crate) fn limit_step<T: Real>(step: &mut [T; 3], theta: &[T; 3]) {
     step[1] = step[1].clamp_to(-one, one);
     let tm_limit = T::from_f64(3.0) / theta[1].exp();
     step[2] = step[2].clamp_to(-tm_limit, tm_limit);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Sym3;
+
+    // A symmetric positive definite matrix and its inverse, checked by
+    // multiplying back (A·A⁻¹ = I, the definition of the inverse).
+    #[test]
+    fn inverse_and_solve_agree_with_the_definition() {
+        let a = Sym3([4.0_f64, 1.0, 0.5, 3.0, -0.2, 2.0]);
+        let inv = a.inverse().unwrap();
+        for i in 0..3 {
+            for j in 0..3 {
+                let mut s = 0.0;
+                for k in 0..3 {
+                    s += a.get(i, k) * inv.get(k, j);
+                }
+                let want = if i == j { 1.0 } else { 0.0 };
+                assert!((s - want).abs() < 1e-12, "({i},{j}) = {s}");
+            }
+        }
+        let b = [1.0, -2.0, 0.5];
+        let x = a.solve(&b, 0.0).unwrap();
+        for i in 0..3 {
+            let s: f64 = (0..3).map(|k| a.get(i, k) * x[k]).sum();
+            assert!((s - b[i]).abs() < 1e-12);
+        }
+        // Not positive definite: refused, not a NaN.
+        assert!(Sym3([1.0_f64, 2.0, 0.0, 1.0, 0.0, 1.0]).inverse().is_none());
+    }
 }

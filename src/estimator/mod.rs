@@ -59,6 +59,10 @@ use history::History;
 
 use crate::Real;
 
+/// Most extra Levenberg–Marquardt iterations per reading while the fit is
+/// still moving (see `refit`).
+const EXTRA_ITERATIONS: u8 = 6;
+
 /// The online growth-curve estimator. `T` is the float type (`f32` on the
 /// device), `N` the number of history slots (8 to 255, default 32).
 ///
@@ -111,6 +115,8 @@ pub struct Estimator<T: Real = f32, const N: usize = 32> {
     /// The last three accepted values above blank (ring), for the gate
     /// before the first fit.
     recent: [T; 3],
+    /// Median of the first three accepted values above blank.
+    first_median: T,
 }
 
 impl<T: Real, const N: usize> Estimator<T, N> {
@@ -135,6 +141,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             held_sign: 0,
             accepted: 0,
             recent: [T::ZERO; 3],
+            first_median: T::ZERO,
         }
     }
 
@@ -204,8 +211,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if self.accepted < 3 {
             return None;
         }
-        let [a, b, c] = self.recent;
-        let median = a.max(b).min(a.min(b).max(c));
+        let median = median3(self.recent);
         let noise = self.config.noise_sd(median);
         let growth = median * ((self.config.max_rate_per_h * (t - self.latest_h)).exp() - T::ONE);
         Some((median, noise * noise + growth * growth))
@@ -227,7 +233,12 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         let run = usize::from(self.held_len);
         self.held_len = 0;
-        let diluted = sign < 0 && y < self.config.dilution_ratio * predicted;
+        // A dilution drops the signal below both the prediction and the last
+        // accepted readings; a long gap or a slow decline does neither.
+        let level_before = median3(self.recent);
+        let diluted = sign < 0
+            && y < self.config.dilution_ratio * predicted
+            && y < self.config.dilution_ratio * level_before;
         if diluted {
             let (times, values) = (self.held_time_h, self.held_value);
             let first = times[0];
@@ -253,6 +264,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         self.latest_h = self.latest_h.max(t);
         self.recent[usize::try_from(self.accepted % 3).unwrap_or(0)] = y;
         self.accepted = self.accepted.saturating_add(1);
+        if self.accepted == 3 {
+            self.first_median = median3(self.recent);
+        }
         if y > T::ZERO {
             self.low = self.low.min(y);
         }
@@ -274,8 +288,12 @@ impl<T: Real, const N: usize> Estimator<T, N> {
 
     fn try_first_fit(&mut self) {
         let n = self.history.len();
+        // Growth seen: the median of the latest three readings over the
+        // median of the first three (medians, so one spike cannot fake it),
+        // or over the noise floor when the culture started below it.
+        let start = self.first_median.max(self.config.noise_floor);
         if n < usize::from(self.config.min_readings)
-            || !(self.high > self.config.min_growth_ratio * self.low)
+            || !(median3(self.recent) > self.config.min_growth_ratio * start)
         {
             return;
         }
@@ -318,6 +336,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     fn refit(&mut self, iterations: u8) {
         let prior = self.prior();
         let mut weights = [T::ZERO; N];
+        let mut z2 = [T::ZERO; N];
         let n = self.history.len();
         let scale = self.noise_scale2.max(T::from_f64(0.01)).sqrt();
         let mut normal = accumulate(
@@ -327,8 +346,16 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             &prior,
             scale,
             &mut weights,
+            &mut z2,
         );
-        for _ in 0..iterations {
+        // `iterations` steps, then up to EXTRA_ITERATIONS more while a step
+        // still cuts the objective by over 1 % (after a long gap or a run of
+        // surprising readings): bounded, and cheap once converged.
+        let mut moving = true;
+        for iteration in 0..iterations.saturating_add(EXTRA_ITERATIONS) {
+            if iteration >= iterations && !moving {
+                break;
+            }
             let current = objective(&self.history, &self.theta, &prior, &weights);
             let mut improved = false;
             for _ in 0..4 {
@@ -345,6 +372,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 clamp_theta(&mut trial);
                 let value = objective(&self.history, &trial, &prior, &weights);
                 if value <= current {
+                    moving = current - value > T::from_f64(0.01) * current;
                     self.theta = trial;
                     self.damping = (self.damping * T::from_f64(0.3)).max(T::from_f64(1e-6));
                     improved = true;
@@ -359,6 +387,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 &prior,
                 scale,
                 &mut weights,
+                &mut z2,
             );
             if !improved {
                 break;
@@ -434,4 +463,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             blank: self.config.blank,
         })
     }
+}
+
+/// The median of three values.
+fn median3<T: Real>([a, b, c]: [T; 3]) -> T {
+    a.max(b).min(a.min(b).max(c))
 }
