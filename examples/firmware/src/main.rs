@@ -11,9 +11,11 @@
 //! every reading was processed and the tallies are as the log was built, and
 //! 1 otherwise (a panic also exits 1 via `panic-semihosting`).
 //!
-//! Two passes over the log: a quiet one between the `plateau_mark_begin` and
-//! `plateau_mark_end` symbols (for `.ci/count-instructions`, which counts
-//! instructions per reading from a QEMU trace), then a printing one.
+//! Three passes over the log: two quiet ones, each between a call of
+//! `plateau_mark_begin` and one of `plateau_mark_end` (for
+//! `.ci/count-instructions`, which counts the instructions in each stretch from
+//! a QEMU trace) — first sampler + photometer, then the photometer alone — and
+//! then a printing one.
 #![no_std]
 #![no_main]
 
@@ -128,7 +130,24 @@ fn tally(t: &mut Tally, reading: Reading<f32>) -> Option<f32> {
     }
 }
 
-/// The quiet pass: sampler + photometer on every reading, nothing printed.
+/// The photometer alone on every logged mean, nothing printed (the second
+/// marked stretch: the per-reading cost of the conversion itself).
+fn photometer_pass(photometer: &Photometer<f32, 5>) -> (Tally, f32) {
+    let counts = black_box(&COUNTS);
+    let mut t = Tally::default();
+    let mut checksum = 0.0_f32;
+    plateau_mark_begin();
+    for &c in counts {
+        #[allow(clippy::cast_precision_loss, reason = "24-bit counts are exact in f32")]
+        let reading = photometer.convert(c as f32);
+        checksum += tally(&mut t, reading).unwrap_or(0.0);
+    }
+    plateau_mark_end();
+    (t, black_box(checksum))
+}
+
+/// The quiet pass: sampler + photometer on every reading, nothing printed
+/// (the first marked stretch).
 fn quiet_pass(photometer: &Photometer<f32, 5>) -> (Tally, f32) {
     let mut sampler = sampler(black_box(&COUNTS));
     let mut t = Tally::default();
@@ -154,6 +173,7 @@ fn main() -> ! {
     );
 
     let (quiet, checksum) = quiet_pass(&photometer);
+    let (direct, _) = photometer_pass(&photometer);
 
     // Reference curve: the invented truth the log was generated from.
     let Ok(truth) = Logistic::<f32>::from_midpoint(
@@ -239,6 +259,7 @@ fn main() -> ! {
         && t.bus_errors == 0
         && usize::try_from(t.od).is_ok_and(|n| n == READINGS - 2)
         && quiet.od == t.od
+        && direct.od == t.od
         && quiet.bus_errors == 0;
     if as_built {
         hprintln!("plateau-fw: done, exit 0");
