@@ -563,6 +563,36 @@ mod tests {
         assert!(!in_range(10_000.0)); // log10(10 000 / 9 900) = 0.0044 OD
     }
 
+    proptest::proptest! {
+        // Invariants: Beer–Lambert absorbance falls as transmitted light rises,
+        // and a strictly increasing table gives a strictly increasing map.
+        #[test]
+        fn od_falls_as_counts_rise(a in 101.0_f64..65_000.0, d in 1.0_f64..500.0) {
+            let p = Photometer::new(channel(1.0));
+            let b = (a + d).min(65_534.0);
+            proptest::prop_assume!(b > a);
+            let (oa, ob) = (p.convert(a).od().unwrap(), p.convert(b).od().unwrap());
+            proptest::prop_assert!(ob < oa);
+        }
+
+        #[test]
+        fn linearity_map_is_increasing(
+            steps in proptest::collection::vec((0.05_f64..1.0, 0.05_f64..1.5), 1..6),
+            x in 0.0_f64..8.0,
+            dx in 1e-6_f64..1.0,
+        ) {
+            let mut points = [(0.0, 0.0); 6];
+            let (mut ax, mut ty) = (0.0, 0.0);
+            for (i, (sx, sy)) in steps.iter().enumerate() {
+                ax += sx;
+                ty += sy;
+                points[i] = (ax, ty);
+            }
+            let t = Linearity::<f64, 6>::new(&points[..steps.len()]).unwrap();
+            proptest::prop_assert!(t.correct(x + dx).0 > t.correct(x).0);
+        }
+    }
+
     #[test]
     fn f32_matches_f64_reference() {
         // The device path (f32) against the host reference (f64) over the
