@@ -34,11 +34,17 @@
 mod error;
 mod estimator;
 mod math;
+mod photometer;
+pub mod sampler;
 
 pub use error::Error;
 pub use estimator::{Estimate, Estimator, EstimatorConfig, Measured, Outcome, Rejection};
 pub use math::Real;
 pub mod model;
+pub use photometer::{
+    COMMON_LINEAR_RANGE_OD, Linearity, OpticalDensity, Photometer, PhotometerConfig, Reading,
+};
+pub use sampler::{MeanCounts, Sampler, SamplerConfig, SamplerError};
 
 pub use model::{
     Baranyi, Blanked, Gompertz, GrowthCurve, Inflection, Logistic, Population, Richards,

@@ -6,7 +6,10 @@
 
 use core::hint::black_box;
 use plateau::model::step;
-use plateau::{Baranyi, Gompertz, GrowthCurve, Logistic, Population, Richards, ZwieteringLogistic};
+use plateau::{
+    Baranyi, Gompertz, GrowthCurve, Linearity, Logistic, Photometer, PhotometerConfig, Population,
+    Richards, SamplerConfig, ZwieteringLogistic,
+};
 
 #[panic_handler]
 fn panic(_: &core::panic::PanicInfo<'_>) -> ! {
@@ -36,6 +39,18 @@ fn exercise() -> f32 {
     acc += step::logistic(0.1, black_box(0.25), k, 0.7).value;
     acc += step::richards(0.1, 0.25, k, 0.7, 0.5).d_shape;
     acc += step::baranyi(0.1, 0.25, k, 0.7, 0.1).1;
+    if let (Ok(c), Ok(l)) = (
+        PhotometerConfig::new(100.0, black_box(10_100.0), 65_535.0, 1.0),
+        Linearity::<f32, 4>::new(&[(1.0, 1.0), (2.0, 2.5)]),
+    ) {
+        acc += Photometer::with_linearity(c, l)
+            .convert(black_box(1_100.0))
+            .od()
+            .unwrap_or(0.0);
+    }
+    if let Ok(s) = SamplerConfig::new(black_box(4), 250, 40, 20) {
+        acc += f32::from(s.conversions());
+    }
     acc
 }
 
