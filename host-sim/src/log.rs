@@ -266,9 +266,17 @@ where
         Some(p) if !p.as_os_str().is_empty() => p,
         _ => Path::new("."),
     };
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".host-sim-")
-        .suffix(".tmp")
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(".host-sim-").suffix(".tmp");
+    // A temporary file is private (0600); the output keeps the mode of the
+    // file it replaces, or gets the usual 0644.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(path).map_or(0o644, |m| m.permissions().mode() & 0o7777);
+        builder.permissions(std::fs::Permissions::from_mode(mode));
+    }
+    let mut tmp = builder
         .tempfile_in(dir)
         .with_context(|| format!("cannot create a temporary file in {}", dir.display()))?;
     {
@@ -410,6 +418,30 @@ mod tests {
             .map(|e| e.unwrap().file_name())
             .collect();
         assert_eq!(names, ["out.csv"]);
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn atomic_write_gives_readable_files_and_keeps_modes() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        write_atomically(&path, |w| Ok(w.write_all(b"x")?)).unwrap();
+        let mode = |p: &Path| std::fs::metadata(p).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode(&path), 0o644);
+        std::fs::set_permissions(&path, std::fs::Permissions::from_mode(0o600)).unwrap();
+        write_atomically(&path, |w| Ok(w.write_all(b"y")?)).unwrap();
+        assert_eq!(mode(&path), 0o600);
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "y");
+    }
+
+    #[test]
+    fn crlf_bad_row_lines_are_true() {
+        let text = "time_h,od\r\n0,0.1\r\n\r\n1,x\r\n2,0.3\r\n";
+        let LogError::BadRows(rows) = read(text).unwrap_err() else {
+            panic!()
+        };
+        assert_eq!(rows[0].line, 4);
     }
 
     #[test]
