@@ -43,7 +43,7 @@
 //!
 //! [decline]               # optional
 //! rate_per_h = 0.02       # OD falls as e^(−rate · time since plateau)
-//! after_fraction = 0.98   # plateau = this fraction of capacity reached
+//! after_fraction = 0.98   # plateau = this fraction of the rise done
 //!
 //! [[gap]]                 # optional, any number: no readings
 //! start_h = 10.0
@@ -219,8 +219,8 @@ fn default_high_fraction() -> f64 {
 pub struct Decline {
     /// Relative decline rate, per hour: OD × e^(−rate · time since plateau).
     pub rate_per_h: f64,
-    /// The plateau starts when the curve reaches this fraction of its
-    /// capacity, between 0 and 1.
+    /// The plateau starts when the curve has risen this fraction of the way
+    /// from its starting level to its capacity, between 0 and 1.
     #[serde(default = "default_after_fraction")]
     pub after_fraction: f64,
 }
