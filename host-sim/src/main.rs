@@ -1,32 +1,94 @@
-//! host-sim: runs the plateau core on the host.
+//! host-sim: the command-line layer over the `host_sim` library.
 //!
-//! For now `demo` prints the closed-form curve of an invented culture; the
-//! full simulator (estimator replay, plots, fleets) replaces it.
+//! Commands:
+//! * `demo`: the built-in invented culture, fitted and plotted;
+//! * `simulate SCENARIO.toml --out stream.csv`: a synthetic sensor stream.
 
-use plateau::{GrowthCurve, Logistic};
+use std::path::PathBuf;
 
-fn main() -> Result<(), Box<dyn std::error::Error>> {
-    let command = std::env::args().nth(1).unwrap_or_default();
-    if command != "demo" {
-        eprintln!("usage: host-sim demo");
-        std::process::exit(2);
+use anyhow::{Context, Result};
+use clap::{Parser, Subcommand};
+use host_sim::demo::{self, DemoPaths};
+use host_sim::scenario::{self, Scenario};
+
+/// Host-side simulator for plateau (all built-in data are invented).
+#[derive(Parser, Debug)]
+#[command(version, about)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Run the built-in invented culture: generate its readings, fit them,
+    /// print the fit beside the closed-form truth, write a CSV and an SVG.
+    Demo {
+        /// Folder for demo.csv and demo.svg (created if missing).
+        #[arg(long, default_value = "host-sim-out")]
+        out_dir: PathBuf,
+        /// Write the readings here instead of OUT_DIR/demo.csv.
+        #[arg(long)]
+        csv: Option<PathBuf>,
+        /// Write the plot here instead of OUT_DIR/demo.svg.
+        #[arg(long)]
+        svg: Option<PathBuf>,
+    },
+    /// Generate the sensor stream a scenario file describes, as CSV with
+    /// columns time_h,od,truth_od,kind.
+    Simulate {
+        /// The scenario (TOML; see host-sim/scenarios/).
+        scenario: PathBuf,
+        /// Output CSV (written atomically); standard output if omitted.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Use this seed instead of the scenario's.
+        #[arg(long)]
+        seed: Option<u64>,
+    },
+}
+
+fn main() -> Result<()> {
+    match Cli::parse().command {
+        Command::Demo { out_dir, csv, svg } => {
+            let mut paths = DemoPaths::in_dir(&out_dir);
+            if let Some(csv) = csv {
+                paths.csv = csv;
+            }
+            if let Some(svg) = svg {
+                paths.svg = svg;
+            }
+            if paths.csv.starts_with(&out_dir) || paths.svg.starts_with(&out_dir) {
+                std::fs::create_dir_all(&out_dir)
+                    .with_context(|| format!("cannot create {}", out_dir.display()))?;
+            }
+            let scenario = Scenario::from_toml(demo::DEMO_SCENARIO)?;
+            let report = demo::run(&scenario, &paths)?;
+            print!("{}", demo::describe(&report, &paths));
+        }
+        Command::Simulate {
+            scenario: path,
+            out,
+            seed,
+        } => {
+            let mut s = Scenario::load(&path)?;
+            if let Some(seed) = seed {
+                s.seed = seed;
+            }
+            let readings = scenario::generate(&s)?;
+            match out {
+                Some(out) => {
+                    host_sim::log::write_atomically(&out, |w| scenario::write_csv(&readings, w))?;
+                    eprintln!(
+                        "{}: {} readings written to {}",
+                        s.name,
+                        readings.len(),
+                        out.display()
+                    );
+                }
+                None => scenario::write_csv(&readings, std::io::stdout().lock())?,
+            }
+        }
     }
-    // Invented culture: capacity 1.5 OD, rate 0.7 per hour, midpoint 8 h.
-    let curve = Logistic::<f64>::from_midpoint(1.5, 0.7, 8.0)?;
-    println!("invented culture: K = 1.5 OD, r = 0.7 /h, midpoint 8 h (closed form)");
-    println!("{:>8} {:>10}", "time_h", "od");
-    for hour in 0..=20 {
-        let t = f64::from(hour);
-        println!("{t:>8.1} {:>10.4}", curve.value(t));
-    }
-    println!(
-        "doubling time {:.3} h, lag (tangent) {:.3} h",
-        curve.doubling_time_h(),
-        curve.lag_h()
-    );
-    println!(
-        "reaches 90 % of capacity at {:.3} h",
-        curve.time_to_reach(1.35)?
-    );
     Ok(())
 }

@@ -1,0 +1,474 @@
+//! `host-sim demo`: the built-in invented culture, its batch fit and a
+//! side-by-side summary.
+//!
+//! The culture is invented (see `scenarios/demo.toml`): logistic growth to
+//! 1.5 OD at 0.7 per hour with its midpoint at 8 h, read every 5 minutes for
+//! 20 h with noise 0.003 OD + 1 % and a few bubbles. The summary is a table of
+//! quantities against sources — the closed-form truth and the batch fit so
+//! far; another source (the online estimate) is one more [`Column`].
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result};
+use plateau::GrowthCurve;
+
+use crate::batch::{LogisticFit, fit_logistic, fit_logistic_trimmed};
+use crate::plot::{BandCurve, Marker, Phase, PlotData, PlotPoint};
+use crate::scenario::{Kind, Reading, Scenario, generate};
+
+/// The demo scenario file, built in.
+pub const DEMO_SCENARIO: &str = include_str!("../scenarios/demo.toml");
+
+/// The fraction of capacity whose crossing time the summary reports.
+pub const TARGET_FRACTION: f64 = 0.9;
+
+/// A value with an optional standard deviation, in the unit of its row.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Value {
+    /// The value.
+    pub value: f64,
+    /// Its standard deviation, if the source gives one.
+    pub sd: Option<f64>,
+}
+
+impl Value {
+    fn exact(value: f64) -> Self {
+        Self { value, sd: None }
+    }
+}
+
+/// What the summary reports about one growth curve.
+///
+/// Units: capacity OD; rate per hour; times hours.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CurveSummary {
+    /// Capacity (plateau), OD units.
+    pub capacity_od: Value,
+    /// Maximum specific growth rate, per hour.
+    pub rate_per_h: Value,
+    /// Doubling time ln 2 / rate, hours.
+    pub doubling_time_h: Value,
+    /// Lag by the tangent construction, hours.
+    pub lag_h: Value,
+    /// Time to reach [`TARGET_FRACTION`] of the capacity, hours.
+    pub time_to_target_h: Value,
+}
+
+impl CurveSummary {
+    /// Exact values of a closed-form curve (no sds).
+    ///
+    /// # Errors
+    ///
+    /// The curve never reaches the target level.
+    pub fn of_curve(curve: &dyn GrowthCurve<f64>) -> Result<Self> {
+        let capacity = curve.upper_asymptote();
+        Ok(Self {
+            capacity_od: Value::exact(capacity),
+            rate_per_h: Value::exact(curve.max_specific_rate_per_h()),
+            doubling_time_h: Value::exact(curve.doubling_time_h()),
+            lag_h: Value::exact(curve.lag_h()),
+            time_to_target_h: Value::exact(
+                curve
+                    .time_to_reach(TARGET_FRACTION * capacity)
+                    .map_err(|e| anyhow::anyhow!("time to target: {e}"))?,
+            ),
+        })
+    }
+
+    /// The batch fit's values with delta-method sds.
+    ///
+    /// # Errors
+    ///
+    /// Never in practice (the fitted curve always reaches 90 % of its own
+    /// capacity); kept fallible like [`of_curve`](Self::of_curve).
+    pub fn of_fit(fit: &LogisticFit) -> Result<Self> {
+        let exact = Self::of_curve(&fit.curve())?;
+        let r = fit.rate_per_h;
+        let ln_target = (TARGET_FRACTION / (1.0 - TARGET_FRACTION)).ln();
+        let with = |v: Value, gradient: [f64; 3]| Value {
+            value: v.value,
+            sd: Some(fit.sd_of(gradient)),
+        };
+        Ok(Self {
+            capacity_od: with(exact.capacity_od, [1.0, 0.0, 0.0]),
+            rate_per_h: with(exact.rate_per_h, [0.0, 1.0, 0.0]),
+            // ln 2 / r
+            doubling_time_h: with(
+                exact.doubling_time_h,
+                [0.0, -std::f64::consts::LN_2 / (r * r), 0.0],
+            ),
+            // t_m − 2 / r
+            lag_h: with(exact.lag_h, [0.0, 2.0 / (r * r), 1.0]),
+            // t_m + ln(p / (1 − p)) / r
+            time_to_target_h: with(exact.time_to_target_h, [0.0, -ln_target / (r * r), 1.0]),
+        })
+    }
+
+    fn rows(&self) -> [(&'static str, Value, usize); 5] {
+        [
+            ("capacity (OD)", self.capacity_od, 4),
+            ("growth rate (per h)", self.rate_per_h, 4),
+            ("doubling time (h)", self.doubling_time_h, 3),
+            ("lag, tangent (h)", self.lag_h, 2),
+            ("time to 90 % of capacity (h)", self.time_to_target_h, 2),
+        ]
+    }
+}
+
+/// One source in the summary table.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Column {
+    /// Header, such as "truth" or "batch fit".
+    pub name: String,
+    /// Its values.
+    pub summary: CurveSummary,
+}
+
+/// The summary table: quantities down, sources across.
+#[derive(Clone, Debug, PartialEq, Default)]
+pub struct Summary {
+    /// The sources, left to right.
+    pub columns: Vec<Column>,
+}
+
+impl Summary {
+    /// The table as aligned text.
+    #[must_use]
+    pub fn render(&self) -> String {
+        const FIRST: usize = 30;
+        const WIDTH: usize = 22;
+        let mut out = format!("{:<FIRST$}", "");
+        for c in &self.columns {
+            let _ = write!(out, "{:>WIDTH$}", c.name);
+        }
+        out.push('\n');
+        let _ = writeln!(out, "{}", "-".repeat(FIRST + WIDTH * self.columns.len()));
+        let rows: Vec<_> = self.columns.iter().map(|c| c.summary.rows()).collect();
+        if let Some(first) = rows.first() {
+            for (i, (label, _, _)) in first.iter().enumerate() {
+                let _ = write!(out, "{label:<FIRST$}");
+                for r in &rows {
+                    let (_, v, digits) = r[i];
+                    let cell = match v.sd {
+                        Some(sd) => format!("{:.digits$} ± {:.digits$}", v.value, sd),
+                        None => format!("{:.digits$}", v.value),
+                    };
+                    let _ = write!(out, "{cell:>WIDTH$}");
+                }
+                out.push('\n');
+            }
+        }
+        out
+    }
+}
+
+/// Where the demo writes.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct DemoPaths {
+    /// The readings as CSV.
+    pub csv: PathBuf,
+    /// The plot as SVG.
+    pub svg: PathBuf,
+}
+
+impl DemoPaths {
+    /// `demo.csv` and `demo.svg` inside `dir`.
+    #[must_use]
+    pub fn in_dir(dir: &Path) -> Self {
+        Self {
+            csv: dir.join("demo.csv"),
+            svg: dir.join("demo.svg"),
+        }
+    }
+}
+
+/// Everything the demo computed.
+#[derive(Clone, Debug)]
+pub struct DemoReport {
+    /// The scenario that was run.
+    pub scenario: Scenario,
+    /// The generated readings.
+    pub readings: Vec<Reading>,
+    /// The batch fit.
+    pub fit: LogisticFit,
+    /// Per reading: set aside by the batch fit as an outlier.
+    pub rejected: Vec<bool>,
+    /// Truth and batch fit side by side.
+    pub summary: Summary,
+    /// The plot that was written.
+    pub plot: PlotData,
+}
+
+/// Fits the logistic to readings the way the demo does: an unweighted fit
+/// gives predicted values ŷ, weights 1 / (floor + fraction · ŷ)² follow the
+/// scenario's noise model, and the weighted fit sets aside readings more than
+/// 4 robust sds off the curve.
+///
+/// Units: times hours, OD units; `floor_od` OD units, `fraction`
+/// dimensionless.
+///
+/// # Errors
+///
+/// The fit fails (see [`crate::batch::FitError`]).
+pub fn batch_fit(
+    readings: &[Reading],
+    floor_od: f64,
+    fraction: f64,
+) -> Result<(LogisticFit, Vec<bool>)> {
+    let t: Vec<f64> = readings.iter().map(|r| r.time_h).collect();
+    let y: Vec<f64> = readings.iter().map(|r| r.od).collect();
+    let first = fit_logistic(&t, &y, None)?;
+    let curve = first.curve();
+    let w: Vec<f64> = t
+        .iter()
+        .map(|&ti| {
+            let sd = floor_od + fraction * curve.value(ti);
+            if sd > 0.0 { 1.0 / (sd * sd) } else { 1.0 }
+        })
+        .collect();
+    Ok(fit_logistic_trimmed(&t, &y, Some(&w), 4.0)?)
+}
+
+/// Runs `scenario` (whose model must be the logistic for the comparison to
+/// be like with like), fits it, writes the CSV and SVG atomically, and
+/// returns the report.
+///
+/// # Errors
+///
+/// The scenario is invalid, the fit fails, or a file cannot be written.
+pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
+    let readings = generate(scenario)?;
+    let (fit, rejected) = batch_fit(&readings, scenario.noise.floor_od, scenario.noise.fraction)
+        .context("batch fit of the demo stream")?;
+    let truth = crate::scenario::Truth::new(scenario)?;
+    let curve = scenario.truth()?;
+    let summary = Summary {
+        columns: vec![
+            Column {
+                name: "truth".into(),
+                summary: CurveSummary::of_curve(curve.as_ref())?,
+            },
+            Column {
+                name: "batch fit (± sd)".into(),
+                summary: CurveSummary::of_fit(&fit)?,
+            },
+        ],
+    };
+    let plot = plot_data(scenario, &readings, &rejected, &fit, &truth, &summary);
+    crate::log::write_atomically(&paths.csv, |w| crate::scenario::write_csv(&readings, w))?;
+    crate::plot::write_svg(&paths.svg, &plot)?;
+    Ok(DemoReport {
+        scenario: scenario.clone(),
+        readings,
+        fit,
+        rejected,
+        summary,
+        plot,
+    })
+}
+
+fn plot_data(
+    scenario: &Scenario,
+    readings: &[Reading],
+    rejected: &[bool],
+    fit: &LogisticFit,
+    truth: &crate::scenario::Truth,
+    summary: &Summary,
+) -> PlotData {
+    let s = scenario.sampling;
+    let grid: Vec<f64> = (0..=400)
+        .map(|i| s.start_h + s.duration_h * f64::from(i) / 400.0)
+        .collect();
+    let curve = fit.curve();
+    let t = &summary.columns[0].summary;
+    let fit_target = summary.columns[1].summary.time_to_target_h.value;
+    PlotData {
+        title: format!("{} — batch fit", scenario.name),
+        readings: readings
+            .iter()
+            .zip(rejected)
+            .map(|(r, &rej)| PlotPoint {
+                time_h: r.time_h,
+                od: r.od,
+                rejected: rej,
+            })
+            .collect(),
+        truth: grid.iter().map(|&x| (x, truth.od(x))).collect(),
+        estimates: vec![BandCurve {
+            label: "batch fit".into(),
+            time_h: grid.clone(),
+            value: grid.iter().map(|&x| curve.value(x)).collect(),
+            sd: grid.iter().map(|&x| fit.value_sd(x)).collect(),
+        }],
+        markers: vec![Marker {
+            time_h: fit_target,
+            label: "90 % of capacity (fit)".into(),
+        }],
+        phases: vec![
+            Phase {
+                start_h: s.start_h,
+                end_h: t.lag_h.value,
+                label: "lag (truth)".into(),
+            },
+            Phase {
+                start_h: t.lag_h.value,
+                end_h: t.time_to_target_h.value,
+                label: "growth".into(),
+            },
+            Phase {
+                start_h: t.time_to_target_h.value,
+                end_h: s.start_h + s.duration_h,
+                label: "near plateau".into(),
+            },
+        ],
+    }
+}
+
+/// The text the `demo` command prints.
+#[must_use]
+pub fn describe(report: &DemoReport, paths: &DemoPaths) -> String {
+    let s = &report.scenario;
+    let spikes = report
+        .readings
+        .iter()
+        .filter(|r| r.kind == Kind::Spike)
+        .count();
+    let set_aside = report.rejected.iter().filter(|r| **r).count();
+    let caught = report
+        .readings
+        .iter()
+        .zip(&report.rejected)
+        .filter(|(r, rej)| **rej && r.kind == Kind::Spike)
+        .count();
+    let mut out = String::new();
+    let _ = writeln!(out, "plateau host-sim demo: {}", s.name);
+    let _ = writeln!(
+        out,
+        "  INVENTED data, not a measurement. {} readings over {} h, noise {} OD + {} %.",
+        report.readings.len(),
+        s.sampling.duration_h,
+        s.noise.floor_od,
+        100.0 * s.noise.fraction
+    );
+    let _ = writeln!(
+        out,
+        "  {spikes} bubbles generated; the batch fit set aside {set_aside} reading(s), \
+         {caught} of them bubbles.\n"
+    );
+    out.push_str(&report.summary.render());
+    let _ = writeln!(
+        out,
+        "\n  batch fit: weighted least squares over all readings at once, residual sd {:.2} \
+         (in noise sds), {} points.",
+        report.fit.residual_sd, report.fit.points
+    );
+    let _ = writeln!(
+        out,
+        "  The online estimate will appear as a further column once it is wired in."
+    );
+    let _ = writeln!(
+        out,
+        "\n  wrote {} (readings) and {} (plot)",
+        paths.csv.display(),
+        paths.svg.display()
+    );
+    let _ = writeln!(
+        out,
+        "  Advisory only: not a validated safety or process control."
+    );
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn demo_runs_writes_files_and_the_fit_covers_the_truth() {
+        let scenario = Scenario::from_toml(DEMO_SCENARIO).unwrap();
+        assert!(DEMO_SCENARIO.contains("INVENTED"));
+        let dir = tempfile::tempdir().unwrap();
+        let paths = DemoPaths::in_dir(dir.path());
+        let report = run(&scenario, &paths).unwrap();
+        // 5-minute readings over 20 h: 241.
+        assert_eq!(report.readings.len(), 241);
+        let truth = &report.summary.columns[0].summary;
+        // Closed forms of the invented logistic K = 1.5, r = 0.7, t_m = 8
+        // (FACTS.md, logistic definitions): doubling ln 2 / r, tangent lag
+        // t_m − 2/r, time to 90 % t_m + ln 9 / r.
+        assert!((truth.capacity_od.value - 1.5).abs() < 1e-12);
+        assert!((truth.doubling_time_h.value - 2f64.ln() / 0.7).abs() < 1e-12);
+        assert!((truth.lag_h.value - (8.0 - 2.0 / 0.7)).abs() < 1e-12);
+        assert!((truth.time_to_target_h.value - (8.0 + 9f64.ln() / 0.7)).abs() < 1e-9);
+        // The batch fit lies within 4 of its own sds of the truth.
+        let fit = &report.summary.columns[1].summary;
+        for (t, f) in [
+            (truth.capacity_od, fit.capacity_od),
+            (truth.rate_per_h, fit.rate_per_h),
+            (truth.lag_h, fit.lag_h),
+            (truth.time_to_target_h, fit.time_to_target_h),
+        ] {
+            let sd = f.sd.unwrap();
+            assert!(sd > 0.0);
+            assert!((f.value - t.value).abs() < 4.0 * sd, "{f:?} vs {t:?}");
+        }
+        // Weighted by the true noise model, σ̂ is near 1 noise sd.
+        assert!(
+            (0.7..1.3).contains(&report.fit.residual_sd),
+            "{}",
+            report.fit.residual_sd
+        );
+        let csv = std::fs::read_to_string(&paths.csv).unwrap();
+        assert_eq!(csv.lines().count(), 242);
+        let svg = std::fs::read_to_string(&paths.svg).unwrap();
+        assert!(svg.contains("</svg>") && svg.len() > 20_000);
+        let text = describe(&report, &paths);
+        assert!(text.contains("INVENTED"));
+        assert!(text.contains("time to 90 % of capacity (h)"));
+    }
+
+    #[test]
+    fn summary_takes_more_columns() {
+        let curve = plateau::Logistic::from_midpoint(1.0, 0.5, 6.0).unwrap();
+        let c = CurveSummary::of_curve(&curve).unwrap();
+        let mut s = Summary::default();
+        for name in ["truth", "batch fit", "online"] {
+            s.columns.push(Column {
+                name: name.into(),
+                summary: c,
+            });
+        }
+        let text = s.render();
+        let header = text.lines().next().unwrap();
+        assert!(header.contains("truth") && header.contains("online"));
+        // Every row has one cell per column.
+        let row = text.lines().find(|l| l.starts_with("capacity")).unwrap();
+        assert_eq!(row.matches("1.0000").count(), 3);
+    }
+
+    #[test]
+    fn delta_method_sd_matches_finite_differences() {
+        // The doubling-time sd from the analytic gradient equals the one from
+        // a numerical gradient of ln 2 / r.
+        let t: Vec<f64> = (0..30).map(|i| f64::from(i) * 0.5).collect();
+        let y: Vec<f64> = t
+            .iter()
+            .enumerate()
+            .map(|(i, &x)| {
+                // Invented data: a logistic plus a fixed alternating wiggle.
+                1.2 / (1.0 + (-0.6 * (x - 7.0)).exp()) + if i % 2 == 0 { 0.01 } else { -0.01 }
+            })
+            .collect();
+        let fit = fit_logistic(&t, &y, None).unwrap();
+        let s = CurveSummary::of_fit(&fit).unwrap();
+        let h = 1e-6;
+        let d = (2f64.ln() / (fit.rate_per_h + h) - 2f64.ln() / (fit.rate_per_h - h)) / (2.0 * h);
+        let numeric = d.abs() * fit.rate_sd_per_h;
+        let analytic = s.doubling_time_h.sd.unwrap();
+        assert!(
+            (numeric / analytic - 1.0).abs() < 1e-5,
+            "{numeric} {analytic}"
+        );
+    }
+}

@@ -1,0 +1,20 @@
+//! host-sim: the host side of plateau.
+//!
+//! Everything the command-line tool does lives here as plain functions that
+//! tests call directly; `main.rs` only parses arguments and prints.
+//!
+//! * [`scenario`]: synthetic sensor streams described in TOML, generated with a
+//!   seeded random source.
+//! * [`batch`]: the reference batch least-squares fit of the logistic and its
+//!   Cramér–Rao bound.
+//! * [`log`]: reading recorded logs (CSV) and writing output files atomically.
+//! * [`plot`]: SVG plots of readings, curves, bands, markers and phases.
+//! * [`demo`]: the built-in invented culture and its summary.
+//!
+//! Units throughout: time in hours, signal in OD units, rates per hour.
+
+pub mod batch;
+pub mod demo;
+pub mod log;
+pub mod plot;
+pub mod scenario;
