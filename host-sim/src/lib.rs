@@ -13,6 +13,7 @@
 //!
 //! Units throughout: time in hours, signal in OD units, rates per hour.
 
+pub mod alerts;
 pub mod batch;
 pub mod demo;
 pub mod log;
