@@ -256,10 +256,10 @@ fn main() -> ! {
     let steady = estimator_pass(&series, WARM_UP_READINGS);
     announce_stretch(1, "sampler_and_photometer", READINGS);
     announce_stretch(2, "photometer_only", READINGS);
-    announce_stretch(3, "estimator_update_whole_log", series.len);
+    announce_stretch(3, "estimator_whole_log", series.len);
     announce_stretch(
         4,
-        "estimator_update_steady_state",
+        "estimator_steady_state",
         series.len.saturating_sub(WARM_UP_READINGS),
     );
 
