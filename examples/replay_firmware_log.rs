@@ -11,7 +11,10 @@
 //! cargo run --example replay_firmware_log --features fast-math  # micromath
 //! ```
 
-#[allow(dead_code, reason = "the firmware uses the invented truth and event times")]
+#[allow(
+    dead_code,
+    reason = "the firmware uses the invented truth and event times"
+)]
 #[path = "firmware/src/culture_log.rs"]
 mod culture_log;
 #[path = "firmware/src/pipeline.rs"]

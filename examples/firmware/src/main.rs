@@ -249,6 +249,11 @@ fn main() -> ! {
         CONVERSIONS_PER_READING
     );
 
+    hprintln!(
+        "plateau-fw: estimator_state_bytes={} (Estimator<f32>, 32 slots, on this target)",
+        core::mem::size_of::<Estimator<f32>>()
+    );
+
     let (quiet, checksum) = quiet_pass(&photometer);
     let (direct, _) = photometer_pass(&photometer);
     let series = od_series(&photometer);
