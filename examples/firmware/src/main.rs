@@ -370,12 +370,11 @@ fn main() -> ! {
         steady
     );
     hprintln!(
-        "plateau-fw: invented truth: capacity {} OD, rate {} per h, doubling time {:.3} h, inflection {} h, lag end {:.3} h",
+        "plateau-fw: invented truth: capacity {} OD, rate {} per h, doubling time {:.3} h, inflection {} h, lag 0 h (a logistic grows from its first reading)",
         culture_log::CAPACITY_OD,
         culture_log::RATE_PER_H,
         truth.doubling_time_h(),
-        culture_log::MIDPOINT_H,
-        culture_log::MIDPOINT_H - 2.0 / culture_log::RATE_PER_H
+        culture_log::MIDPOINT_H
     );
     let estimate = estimator.estimate();
     hprintln!("{}", FinalLine(estimate.as_ref()));

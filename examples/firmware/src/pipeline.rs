@@ -150,7 +150,7 @@ impl fmt::Display for FinalLine<'_> {
         pair(f, "rate_per_h", Some(e.rate_per_h))?;
         pair(f, "doubling_h", Some(e.doubling_time_h))?;
         pair(f, "inflection_h", e.inflection_time_h)?;
-        pair(f, "lag_end_h", e.lag_end_h)?;
+        pair(f, "lag_h", e.lag_h)?;
         write!(f, " noise_scale={} readings={}", e.noise_scale, e.readings)
     }
 }
