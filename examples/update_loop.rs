@@ -1,4 +1,4 @@
-//! Runs the default estimator (`Estimator::<f32>`, 32 slots) over a
+//! Runs the default estimator (`Estimator::<f32>`, 16 slots) over a
 //! deterministic, INVENTED stream of readings and prints the final estimate:
 //! the workload for host instruction counts (`.ci/count-host-instructions`
 //! runs it under callgrind for two lengths and divides the difference).
@@ -11,7 +11,11 @@
 //!
 //! ```sh
 //! cargo run --release --example update_loop -- 2000
+//! PLATEAU_REFIT_EVERY=8 cargo run --release --example update_loop -- 2000
 //! ```
+//!
+//! `PLATEAU_REFIT_EVERY` (1 to 64, default 1) sets the estimator's
+//! `refit_every`.
 
 use std::process::ExitCode;
 
@@ -65,7 +69,15 @@ fn main() -> ExitCode {
         }
     };
     let mut noise = Lcg(0x2545_F491);
-    let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
+    let every = std::env::var("PLATEAU_REFIT_EVERY").map_or(Ok(1), |v| v.parse::<u8>());
+    let config = match every.map(|e| EstimatorConfig::new().refit_every(e)) {
+        Ok(Ok(config)) => config,
+        _ => {
+            eprintln!("PLATEAU_REFIT_EVERY must be 1 to 64");
+            return ExitCode::FAILURE;
+        }
+    };
+    let mut estimator = Estimator::<f32>::new(config);
     let (mut accepted, mut rejected) = (0_u32, 0_u32);
     for i in 0..readings {
         let (t, od) = reading(i, &mut noise);

@@ -49,6 +49,7 @@ pub struct EstimatorConfig<T = f32> {
     pub(crate) max_rate_per_h: T,
     pub(crate) max_consecutive_rejections: u8,
     pub(crate) refit_iterations: u8,
+    pub(crate) refit_every: u8,
     pub(crate) min_readings: u8,
 }
 
@@ -77,6 +78,7 @@ impl<T: Real> EstimatorConfig<T> {
             max_rate_per_h: T::from_f64(3.0),
             max_consecutive_rejections: 4,
             refit_iterations: 2,
+            refit_every: 1,
             min_readings: 6,
         }
     }
@@ -227,6 +229,25 @@ impl<T: Real> EstimatorConfig<T> {
             });
         }
         self.refit_iterations = iterations;
+        Ok(self)
+    }
+
+    /// Refit over the whole history every `every` accepted readings (1 to
+    /// 64, default 1: every reading). In between, each reading updates the
+    /// estimate by one extended-Kalman-filter step, which costs a small
+    /// fraction of a refit: the cost per reading falls roughly as 1/`every`.
+    /// Accuracy first: the README's results table gives the accuracy and the
+    /// cost for 1 and for larger values; choose by them.
+    ///
+    /// # Errors
+    /// Out of 1..=64.
+    pub fn refit_every(mut self, every: u8) -> Result<Self, Error> {
+        if !(1..=64).contains(&every) {
+            return Err(Error::OutOfRange {
+                parameter: "refit_every",
+            });
+        }
+        self.refit_every = every;
         Ok(self)
     }
 

@@ -66,7 +66,7 @@ pub use config::EstimatorConfig;
 pub use estimate::{Estimate, Measured, Outcome, Rejection};
 
 use config::MAX_HELD;
-use fit::{Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective};
+use fit::{Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse};
 use history::History;
 
 use crate::Real;
@@ -137,6 +137,8 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     /// Running mean of squared standardised innovations, and how many.
     innovation_z2: T,
     innovations: u32,
+    /// Accepted readings since the last full refit.
+    since_refit: u8,
 }
 
 impl<T: Real, const N: usize> Estimator<T, N> {
@@ -164,6 +166,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             first_median: T::ZERO,
             innovation_z2: T::ZERO,
             innovations: 0,
+            since_refit: 0,
         }
     }
 
@@ -202,55 +205,62 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         let y = value - self.config.blank;
 
-        if let Some((predicted, var)) = self.prediction(t) {
+        // With a fit, the model is evaluated once here and shared by the gate,
+        // the noise-scale tracker and the recursive step.
+        let fitted = self.fitted.then(|| {
+            let (f, g) = model(&self.theta, t);
+            (f, g, self.covariance.quadratic(&g).max(T::ZERO))
+        });
+        let prediction = match fitted {
+            Some((f, _, fit_var)) => {
+                let noise = self.config.noise_sd(f) * self.noise_scale2.max(T::ONE).sqrt();
+                Some((f, noise * noise + fit_var))
+            }
+            None => self.early_prediction(t),
+        };
+        if let Some((predicted, var)) = prediction {
             let innovation = y - predicted;
             if innovation * innovation > self.config.gate_sigma * self.config.gate_sigma * var {
                 return self.hold(t, y, innovation, predicted);
             }
         }
         self.held_len = 0;
-        if self.fitted {
-            self.track_innovation(t, y);
+        if let Some((f, _, fit_var)) = fitted {
+            self.track_innovation(y - f, fit_var, self.config.noise_sd(f));
         }
-        self.accept(t, y);
+        self.accept(t, y, fitted.map(|(f, g, _)| (f, g)));
         Outcome::Accepted
     }
 
     /// Running mean of squared standardised innovations of accepted readings:
     /// (e² − gᵀPg) / sd², whose expectation is the noise scale² (the fit's
-    /// own variance gᵀPg removed). Exponentially weighted over about the last
+    /// own variance gᵀPg removed), each capped as explained below. Exponentially weighted over about the last
     /// 64 readings, it estimates the noise scale from many more readings
     /// than the history has slots.
-    fn track_innovation(&mut self, t: T, y: T) {
-        let (f, g) = model(&self.theta, t);
-        let e = y - f;
-        let sd = self.config.noise_sd(f);
-        let z2 = (e * e - self.covariance.quadratic(&g)).max(T::ZERO) / (sd * sd);
+    fn track_innovation(&mut self, e: T, fit_var: T, sd: T) {
+        let z2 = (e * e - fit_var).max(T::ZERO) / (sd * sd);
         if !z2.is_finite() {
             return;
         }
+        // Each reading's share is capped at 9 × the current scale² (a
+        // 3-sd residual), so a few odd readings that pass the gate cannot
+        // inflate the scale and widen the gate for more: with a fraction p
+        // of such readings the scale² settles at (1 − p)/(1 − 9p), not ∞ for
+        // p < 1/9. Cost on clean data: E[min(Z², 9)] = 0.995.
+        let z2 = z2.min(T::from_f64(9.0) * self.noise_scale2.max(T::from_f64(0.01)));
         self.innovations = self.innovations.saturating_add(1);
         let n = T::from_u32(self.innovations.min(INNOVATION_MEMORY));
         self.innovation_z2 += (z2 - self.innovation_z2) / n;
     }
 
-    /// The predicted value above blank at `t` (hours since origin) and the
-    /// variance of a reading about it, or `None` when too little is known.
-    ///
-    /// With a fit: the fitted curve, with the noise model (scaled by the
-    /// learnt noise scale, never below the configured one) plus the fit's own
-    /// uncertainty. Before the first fit: the median of the last three
-    /// accepted values, allowing growth (or decay) at up to `max_rate_per_h`
-    /// since the latest accepted reading.
-    fn prediction(&self, t: T) -> Option<(T, T)> {
-        if self.fitted {
-            let (f, g) = model(&self.theta, t);
-            let noise = self.config.noise_sd(f) * self.noise_scale2.max(T::ONE).sqrt();
-            return Some((
-                f,
-                noise * noise + self.covariance.quadratic(&g).max(T::ZERO),
-            ));
-        }
+    /// Before the first fit: the predicted value above blank at `t` (hours
+    /// since origin) — the median of the last three accepted values — and
+    /// the variance of a reading about it, allowing growth (or decay) at up
+    /// to `max_rate_per_h` since the latest accepted reading; `None` before
+    /// three readings. (With a fit, `update` predicts from the fitted curve,
+    /// with the noise model scaled by the learnt noise scale — never below
+    /// the configured one — plus the fit's own uncertainty.)
+    fn early_prediction(&self, t: T) -> Option<(T, T)> {
         if self.accepted < 3 {
             return None;
         }
@@ -289,20 +299,22 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             *self = Self::new(self.config);
             self.origin_h = origin;
             for k in 0..run {
-                self.accept(times[k] - first, values[k]);
+                self.accept(times[k] - first, values[k], None);
             }
             return Outcome::Restarted;
         }
         // Consistent readings the model did not expect: the model must move.
         for k in 0..run {
             let (ht, hv) = (self.held_time_h[k], self.held_value[k]);
-            self.accept(ht, hv);
+            self.accept(ht, hv, None);
         }
         self.damping = T::from_f64(1e-3);
         Outcome::Accepted
     }
 
-    fn accept(&mut self, t: T, y: T) {
+    /// Takes a reading into the history and updates the fit. `model_at_t`
+    /// is the fitted value and gradient at `t` when the caller has them.
+    fn accept(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) {
         self.history.push(t, y);
         self.latest_h = self.latest_h.max(t);
         self.recent[usize::try_from(self.accepted % 3).unwrap_or(0)] = y;
@@ -314,11 +326,71 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             self.low = self.low.min(y);
         }
         self.high = self.high.max(y);
-        if self.fitted {
+        if !self.fitted {
+            self.try_first_fit();
+        } else if self.since_refit.saturating_add(1) >= self.config.refit_every
+            || !self.recursive_step(t, y, model_at_t)
+        {
+            self.since_refit = 0;
             self.refit(self.config.refit_iterations);
         } else {
-            self.try_first_fit();
+            self.since_refit = self.since_refit.saturating_add(1);
         }
+    }
+
+    /// Between refits (when `refit_every` > 1): one extended-Kalman-filter
+    /// measurement update of the static parameters with this reading —
+    /// K = P g / (gᵀ P g + R), θ ← θ + K e, P ← P − K gᵀ P (Kalman 1960;
+    /// the parameters do not move between readings, so there is no predict
+    /// step). The next refit re-linearises over the whole history. Returns
+    /// false, leaving the state unchanged, if the reading is surprising
+    /// (innovation beyond 2 sd) or the update is not numerically sound; the
+    /// caller then refits at once.
+    fn recursive_step(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) -> bool {
+        let (f, g) = model_at_t.unwrap_or_else(|| model(&self.theta, t));
+        let noise = self.config.noise_sd(f);
+        let r = noise * noise * self.noise_scale2;
+        let pg = [
+            self.covariance.get(0, 0) * g[0]
+                + self.covariance.get(0, 1) * g[1]
+                + self.covariance.get(0, 2) * g[2],
+            self.covariance.get(1, 0) * g[0]
+                + self.covariance.get(1, 1) * g[1]
+                + self.covariance.get(1, 2) * g[2],
+            self.covariance.get(2, 0) * g[0]
+                + self.covariance.get(2, 1) * g[1]
+                + self.covariance.get(2, 2) * g[2],
+        ];
+        let innovation_var = g[0] * pg[0] + g[1] * pg[1] + g[2] * pg[2] + r;
+        if !(innovation_var > T::ZERO) || !innovation_var.is_finite() {
+            return false;
+        }
+        let e = y - f;
+        // A surprising reading (beyond 2 sd) may mean the linearisation is
+        // off — after a gap, a lag ending, a spike the gate let through:
+        // leave it to a full, robust refit.
+        if e * e > T::from_f64(4.0) * innovation_var {
+            return false;
+        }
+        let mut step = [
+            pg[0] * e / innovation_var,
+            pg[1] * e / innovation_var,
+            pg[2] * e / innovation_var,
+        ];
+        limit_step(&mut step, &self.theta);
+        let mut theta = [
+            self.theta[0] + step[0],
+            self.theta[1] + step[1],
+            self.theta[2] + step[2],
+        ];
+        clamp_theta(&mut theta);
+        let covariance = self.covariance.minus_outer(&pg, T::ONE / innovation_var);
+        if !covariance.is_positive_definite() {
+            return false;
+        }
+        self.theta = theta;
+        self.covariance = covariance;
+        true
     }
 
     fn prior(&self) -> Prior<T> {
@@ -407,7 +479,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             if iteration >= iterations && !moving {
                 break;
             }
-            let current = objective(&self.history, &self.theta, &prior, &weights);
+            let current = normal.objective;
             let mut improved = false;
             for _ in 0..4 {
                 let Some(mut step) = normal.info.solve(&normal.gradient, self.damping) else {
@@ -431,6 +503,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 }
                 self.damping = (self.damping * T::from_f64(4.0)).min(T::from_f64(1e6));
             }
+            if !improved {
+                break;
+            }
             normal = accumulate(
                 &self.history,
                 &self.config,
@@ -440,17 +515,15 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 &mut weights,
                 &mut z2,
             );
-            if !improved {
-                break;
-            }
         }
+        let robust_sse = robust_sse(&mut z2[..n]);
         // Noise scale: from the innovations once there are enough of them,
         // otherwise from the slot residuals (slots − 3 degrees of freedom).
         if self.innovations >= MIN_INNOVATIONS && self.innovation_z2 > T::ZERO {
             self.noise_scale2 = self.innovation_z2;
         } else if n > 5 {
             let dof = T::from_u32(u32::try_from(n - 3).unwrap_or(1));
-            let s2 = normal.sse / dof;
+            let s2 = robust_sse / dof;
             if s2.is_finite() && s2 > T::ZERO {
                 self.noise_scale2 = s2;
             }
@@ -463,7 +536,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let mut cov_scale2 = self.noise_scale2;
         if n > 5 {
             let dof = T::from_u32(u32::try_from(n - 3).unwrap_or(1));
-            let slot_s2 = normal.sse / dof;
+            let slot_s2 = robust_sse / dof;
             if slot_s2.is_finite() {
                 cov_scale2 = cov_scale2.max(slot_s2);
             }
