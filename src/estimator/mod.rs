@@ -291,9 +291,13 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         // Growth seen: the median of the latest three readings over the
         // median of the first three (medians, so one spike cannot fake it),
         // or over the noise floor when the culture started below it.
+        // The growth must also stand out of the noise: five noise sds above
+        // the start, so a noisy start near the floor cannot fake it.
         let start = self.first_median.max(self.config.noise_floor);
+        let now = median3(self.recent);
         if n < usize::from(self.config.min_readings)
-            || !(median3(self.recent) > self.config.min_growth_ratio * start)
+            || !(now > self.config.min_growth_ratio * start)
+            || !(now - start > T::from_f64(5.0) * self.config.noise_sd(start))
         {
             return;
         }
@@ -425,7 +429,12 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             value: k,
             sd: k * sd_ln_k,
         };
-        let published = sd_ln_k < self.config.capacity_max_rel_sd;
+        // Published only when precise enough and when the rise from the
+        // starting level to it stands out of the noise (ten noise sds): a
+        // "plateau" within a few sds of the start is a fit to noise.
+        let start = self.first_median.max(self.config.noise_floor);
+        let published = sd_ln_k < self.config.capacity_max_rel_sd
+            && k - start > T::from_f64(10.0) * self.config.noise_sd(k);
         let inflection = Measured {
             value: theta[2] + self.origin_h,
             sd: cov.get(2, 2).max(T::ZERO).sqrt(),

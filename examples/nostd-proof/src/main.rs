@@ -1,4 +1,4 @@
-//! Links the model math into a bare-metal binary. If anything in `plateau`'s
+//! Links the model math, the estimator and the monitor into a bare-metal binary. If anything in `plateau`'s
 //! dependency tree needed std or alloc, this would fail to build: there is no
 //! std for the target and no global allocator here.
 #![no_std]
@@ -10,6 +10,7 @@ use plateau::{
     Baranyi, Gompertz, GrowthCurve, Linearity, Logistic, Photometer, PhotometerConfig, Population,
     Richards, SamplerConfig, ZwieteringLogistic,
 };
+use plateau::{EstimatorConfig, MonitorConfig, Target, Watch};
 
 #[panic_handler]
 fn panic(_: &core::panic::PanicInfo<'_>) -> ! {
@@ -50,6 +51,21 @@ fn exercise() -> f32 {
     }
     if let Ok(s) = SamplerConfig::new(black_box(4), 250, 40, 20) {
         acc += f32::from(s.conversions());
+    }
+    // The whole reading path: estimator and monitor behind the facade.
+    let mut watch: Watch = Watch::new(EstimatorConfig::new(), MonitorConfig::new());
+    let _ = watch.add_target(Target::FractionOfCapacity(0.5));
+    for i in 0..black_box(200_u16) {
+        let t = f32::from(i) / 6.0;
+        let y = 1.5 / (1.0 + 150.0 * plateau::Real::exp(-0.7 * t));
+        let report = watch.update(t, black_box(y));
+        acc += report.saturation_eta_h.map_or(0.0, |m| m.value);
+        while let Some(e) = watch.next_event() {
+            acc += e.time_h;
+        }
+    }
+    if let Some(e) = watch.estimate() {
+        acc += e.rate_per_h.value + e.capacity.map_or(0.0, |k| k.value);
     }
     acc
 }
