@@ -28,7 +28,9 @@ use std::fmt::Write as _;
 
 use anyhow::Result;
 use indicatif::{ProgressBar, ProgressStyle};
-use plateau::{Baranyi, EstimatorConfig, GrowthCurve, Logistic, Outcome, Population, Rejection};
+use plateau::{
+    Baranyi, EstimatorConfig, GrowthCurve, Logistic, MonitorConfig, Outcome, Population, Rejection,
+};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Exp, StandardNormal};
@@ -291,8 +293,11 @@ pub struct StreamRun {
     pub spikes: usize,
     /// Spikes the estimator rejected as spikes.
     pub spikes_rejected: usize,
-    /// Ordinary readings the estimator rejected.
+    /// Ordinary readings the estimator rejected (any reason: negative
+    /// readings near zero OD are rejected too).
     pub clean_rejected: usize,
+    /// Ordinary readings the innovation gate rejected as spikes.
+    pub clean_gated: usize,
     /// Ordinary (not spike) readings.
     pub clean_readings: usize,
     /// Restarts (none are expected).
@@ -334,7 +339,7 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
     let true_capacity = truth.upper_asymptote();
     let true_rate = truth.max_specific_rate_per_h();
     let readings: Vec<(f64, f64)> = g.time_h.iter().copied().zip(g.od.iter().copied()).collect();
-    let steps = online::run(EstimatorConfig::new(), &readings);
+    let steps = online::run(EstimatorConfig::new(), MonitorConfig::new(), &readings);
     let checkpoint = |upto: usize| -> Checkpoint {
         let e = upto.checked_sub(1).and_then(|i| steps[i].estimate);
         let m = |m: plateau::Measured<f32>| Est {
@@ -367,6 +372,7 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
         spikes: 0,
         spikes_rejected: 0,
         clean_rejected: 0,
+        clean_gated: 0,
         clean_readings: 0,
         restarts: 0,
     };
@@ -375,6 +381,10 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
         out.clean_readings += usize::from(!spike);
         match s.outcome {
             Outcome::Rejected(Rejection::Spike) if spike => out.spikes_rejected += 1,
+            Outcome::Rejected(Rejection::Spike) => {
+                out.clean_rejected += 1;
+                out.clean_gated += 1;
+            }
             Outcome::Rejected(_) if !spike => out.clean_rejected += 1,
             Outcome::Restarted => out.restarts += 1,
             _ => {}
@@ -443,6 +453,13 @@ fn rms(v: &[f64]) -> f64 {
     (v.iter().map(|x| x * x).sum::<f64>() / v.len() as f64).sqrt()
 }
 
+/// RMS over the values that exist (a weighted fit that did not converge is
+/// left out of its own column).
+fn rms_finite(v: &[f64]) -> f64 {
+    let kept: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    rms(&kept)
+}
+
 fn share(count: usize, of: usize) -> f64 {
     if of == 0 {
         f64::NAN
@@ -507,13 +524,13 @@ pub fn figures(points: &[Checkpoint]) -> Figures {
         capacity_runs: cn,
         capacity_rmse_online: rms(&cap.0),
         capacity_rmse_batch: rms(&cap.1),
-        capacity_rmse_weighted: rms(&cap.2),
+        capacity_rmse_weighted: rms_finite(&cap.2),
         capacity_ratio: rms(&cap.0) / rms(&cap.1),
         capacity_rmse_online_unchecked: rms(&unchecked),
         rate_runs: rn,
         rate_rmse_online: rms(&rate.0),
         rate_rmse_batch: rms(&rate.1),
-        rate_rmse_weighted: rms(&rate.2),
+        rate_rmse_weighted: rms_finite(&rate.2),
         rate_ratio: rms(&rate.0) / rms(&rate.1),
         capacity_crb_online: rms(&cap.3),
         capacity_crb_batch: rms(&cap.4),
@@ -539,8 +556,10 @@ pub struct StreamFigures {
     pub spikes: usize,
     /// Spikes rejected by the estimator's gate.
     pub spikes_rejected: usize,
-    /// Ordinary readings rejected.
+    /// Ordinary readings rejected (any reason).
     pub clean_rejected: usize,
+    /// Ordinary readings rejected by the gate as spikes.
+    pub clean_gated: usize,
     /// Ordinary readings.
     pub clean_readings: usize,
     /// Restarts over all runs (no dilutions happen, so all are false).
@@ -607,6 +626,7 @@ pub fn run(options: &FleetOptions) -> Result<FleetReport> {
                 spikes,
                 spikes_rejected: runs.iter().map(|r| r.spikes_rejected).sum(),
                 clean_rejected: runs.iter().map(|r| r.clean_rejected).sum(),
+                clean_gated: runs.iter().map(|r| r.clean_gated).sum(),
                 clean_readings: runs.iter().map(|r| r.clean_readings).sum(),
                 restarts: runs.iter().map(|r| r.restarts).sum(),
             }
@@ -740,13 +760,17 @@ pub fn render(report: &FleetReport) -> String {
     for sf in &report.streams {
         let _ = writeln!(
             s,
-            "{:<8} spikes rejected {}/{} ({} %), ordinary readings rejected {}/{}, restarts {}",
+            "{:<8} spikes rejected {}/{} ({} %); ordinary readings rejected {}/{} ({} %), \
+             of them by the gate {} ({} %); restarts {}",
             sf.stream.name(),
             sf.spikes_rejected,
             sf.spikes,
             pct(share(sf.spikes_rejected, sf.spikes)),
             sf.clean_rejected,
             sf.clean_readings,
+            pct(share(sf.clean_rejected, sf.clean_readings)),
+            sf.clean_gated,
+            pct(share(sf.clean_gated, sf.clean_readings)),
             sf.restarts
         );
     }

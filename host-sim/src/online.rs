@@ -1,6 +1,7 @@
-//! The online estimator on the host: the device's `f32` [`Estimator`] fed
-//! reading by reading, exactly as the firmware feeds it, with its settings
-//! taken from flags or a TOML file.
+//! The online estimator on the host: the device's `f32` estimator and
+//! culture monitor (the [`Watch`] facade) fed reading by reading, exactly as
+//! the firmware feeds them, with the estimator's settings taken from flags or
+//! a TOML file.
 //!
 //! Readings arrive here as `f64` (as read from a log or generated) and are
 //! narrowed to `f32` before they reach the estimator, as the device holds
@@ -22,7 +23,9 @@
 use std::path::Path;
 
 use anyhow::{Context, Result, anyhow};
-use plateau::{Estimate, Estimator, EstimatorConfig, Outcome};
+use plateau::{
+    Estimate, EstimatorConfig, Event, Measured, MonitorConfig, Outcome, Phase, TimedEvent, Watch,
+};
 use serde::{Deserialize, Serialize};
 
 /// Estimator settings as a user gives them; `None` keeps the default.
@@ -102,7 +105,7 @@ impl Settings {
 /// What happened at one reading.
 ///
 /// Units: `time_h` hours, `value` OD units (as given, before narrowing).
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct Step {
     /// Time of the reading, hours.
     pub time_h: f64,
@@ -112,6 +115,16 @@ pub struct Step {
     pub outcome: Outcome,
     /// The estimate after the reading (`None` before the first fit).
     pub estimate: Option<Estimate<f32>>,
+    /// The monitor's growth phase after the reading.
+    pub phase: Phase,
+    /// The monitor's forecast time of reaching the alert fraction of the
+    /// capacity (hours, caller's clock), while a capacity is published.
+    pub saturation_eta_h: Option<Measured<f32>>,
+    /// Whether the saturation alert is active (from the alert until it
+    /// re-arms).
+    pub alert_active: bool,
+    /// Events the monitor raised at this reading, in order.
+    pub events: Vec<TimedEvent<f32>>,
 }
 
 /// A status word for an outcome: `accepted`, `restarted` or the rejection
@@ -132,23 +145,61 @@ pub fn to_device(x: f64) -> f32 {
     x as f32
 }
 
+/// The monitor configuration for a saturation alert at `fraction` of the
+/// capacity, `lead_h` hours ahead (other settings at their defaults).
+///
+/// # Errors
+///
+/// `fraction` outside (0, 1) or a negative or non-finite lead.
+pub fn monitor_config(fraction: f64, lead_h: f64) -> Result<MonitorConfig<f32>> {
+    MonitorConfig::new()
+        .saturation_alert(to_device(fraction), to_device(lead_h))
+        .map_err(|e| anyhow!("alert fraction / lead: {e}"))
+}
+
 /// Feeds `readings` (time in hours, value in OD units) through a fresh `f32`
-/// estimator, one by one, and records every step.
+/// [`Watch`] (estimator and monitor), one by one, and records every step.
 #[must_use]
-pub fn run(config: EstimatorConfig<f32>, readings: &[(f64, f64)]) -> Vec<Step> {
-    let mut estimator = Estimator::<f32>::new(config);
+pub fn run(
+    config: EstimatorConfig<f32>,
+    monitor: MonitorConfig<f32>,
+    readings: &[(f64, f64)],
+) -> Vec<Step> {
+    let mut watch: Watch = Watch::new(config, monitor);
     readings
         .iter()
         .map(|&(time_h, value)| {
-            let outcome = estimator.update(to_device(time_h), to_device(value));
+            let report = watch.update(to_device(time_h), to_device(value));
+            let mut events = Vec::new();
+            while let Some(e) = watch.next_event() {
+                events.push(e);
+            }
             Step {
                 time_h,
                 value,
-                outcome,
-                estimate: estimator.estimate(),
+                outcome: report.outcome,
+                estimate: watch.estimate(),
+                phase: report.phase,
+                saturation_eta_h: report.saturation_eta_h,
+                alert_active: report.alert_active,
+                events,
             }
         })
         .collect()
+}
+
+/// A short name of an event, for CSV cells and JSON.
+#[must_use]
+pub fn event_name(event: &Event<f32>) -> String {
+    match event {
+        Event::Phase { to, .. } => format!("phase_{}", to.as_str()),
+        Event::SaturationAlert { .. } => "saturation_alert".into(),
+        Event::SaturationRearmed => "saturation_rearmed".into(),
+        Event::TargetDue { target, .. } => format!("target_{target}_due"),
+        Event::TargetReached { target } => format!("target_{target}_reached"),
+        Event::Fault { fault, .. } => format!("fault_{}", fault.as_str()),
+        Event::Restarted => "restarted".into(),
+    }
 }
 
 #[cfg(test)]
@@ -178,6 +229,7 @@ mod tests {
     fn statuses_name_the_outcome() {
         let steps = run(
             EstimatorConfig::new(),
+            MonitorConfig::new(),
             &[
                 (0.0, 0.1),
                 (1.0, f64::NAN),

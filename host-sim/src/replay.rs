@@ -1,5 +1,5 @@
-//! `host-sim replay`: a recorded log through the device's `f32` estimator,
-//! reading by reading, with a per-reading CSV and a JSON summary that puts
+//! `host-sim replay`: a recorded log through the device's `f32` estimator
+//! and culture monitor ([`plateau::Watch`]), reading by reading, with a per-reading CSV and a JSON summary that puts
 //! the batch fit of the same log beside the online estimate.
 //!
 //! Every parsed row goes to the estimator, including NaN, negative and
@@ -10,7 +10,8 @@
 //! # Output columns (one row per reading)
 //!
 //! `line, time_h, od, status, capacity, capacity_sd, rate_per_h, rate_sd,
-//! doubling_time_h, lag_h, inflection_time_h, phase, saturation_eta_h, alert`
+//! doubling_time_h, lag_h, inflection_time_h, phase, saturation_eta_h,
+//! saturation_eta_sd_h, alert, alert_active, events`
 //!
 //! * `status`: `accepted`, `restarted` or the rejection reason.
 //! * `capacity`, `capacity_sd`: published capacity above the blank (empty
@@ -18,10 +19,15 @@
 //! * `lag_h`: end of the lag by the tangent construction, hours on the log's
 //!   clock (the lag's length when the log starts at 0 h at inoculation).
 //! * `inflection_time_h`, `saturation_eta_h`: hours on the log's clock;
-//!   `saturation_eta_h` is when the fitted curve reaches the alert fraction of
-//!   its capacity, given only while a capacity is published.
-//! * `phase`, `alert`: from the culture monitor; empty in this build, which
-//!   has no monitor yet.
+//!   `saturation_eta_h` is the monitor's forecast of when the culture reaches
+//!   the alert fraction of its capacity, given only while a capacity is
+//!   published.
+//! * `phase`: the monitor's growth phase after the reading.
+//! * `alert`: `saturation_alert` on the reading that raised the saturation
+//!   alert, `saturation_rearmed` where it re-armed, else empty;
+//!   `alert_active` is `true` from the alert until it re-arms.
+//! * `events`: every event the monitor raised at the reading (phase changes,
+//!   faults, targets), separated by `;`.
 //!
 //! An empty cell means nothing is known. Units: hours, OD units, per hour.
 
@@ -29,7 +35,7 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use anyhow::{Context, Result, ensure};
-use plateau::{Estimate, EstimatorConfig, Measured, Outcome};
+use plateau::{Estimate, EstimatorConfig, Event, Outcome};
 use serde_json::{Value as Json, json};
 
 use crate::batch::{LogisticFit, fit_logistic_trimmed};
@@ -37,7 +43,7 @@ use crate::log::{Log, LogOptions, read_log_file, write_atomically};
 use crate::online::{self, Settings, Step};
 
 /// The header of the per-reading CSV.
-pub const COLUMNS: [&str; 14] = [
+pub const COLUMNS: [&str; 17] = [
     "line",
     "time_h",
     "od",
@@ -51,7 +57,10 @@ pub const COLUMNS: [&str; 14] = [
     "inflection_time_h",
     "phase",
     "saturation_eta_h",
+    "saturation_eta_sd_h",
     "alert",
+    "alert_active",
+    "events",
 ];
 
 /// How to replay.
@@ -148,8 +157,9 @@ pub fn replay(log: &Log, options: &ReplayOptions) -> Result<Replay> {
         options.alert_lead_h
     );
     let config = options.settings.config()?;
+    let monitor = online::monitor_config(options.alert_fraction, options.alert_lead_h)?;
     let readings: Vec<(f64, f64)> = log.rows.iter().map(|r| (r.time_h, r.value)).collect();
-    let steps = online::run(config, &readings);
+    let steps = online::run(config, monitor, &readings);
     let batch = batch_of(&steps, f64::from(config.blank_value()));
     Ok(Replay {
         lines: log.rows.iter().map(|r| r.line).collect(),
@@ -191,10 +201,16 @@ fn cell(x: Option<f32>) -> String {
         .map_or_else(String::new, |v| v.to_string())
 }
 
-/// Published capacity, and the saturation forecast that depends on it.
-fn saturation_eta_h(e: &Estimate<f32>, fraction: f64) -> Option<Measured<f32>> {
-    e.capacity?;
-    e.time_to_fraction(online::to_device(fraction))
+fn alert_word(step: &Step) -> &'static str {
+    let mut word = "";
+    for e in &step.events {
+        match e.event {
+            Event::SaturationAlert { .. } => word = "saturation_alert",
+            Event::SaturationRearmed => word = "saturation_rearmed",
+            _ => {}
+        }
+    }
+    word
 }
 
 /// Writes the per-reading CSV.
@@ -220,12 +236,16 @@ pub fn write_csv(replay: &Replay, out: &mut dyn std::io::Write) -> Result<()> {
             cell(e.map(|e| e.doubling_time_h.value)),
             cell(e.and_then(|e| e.lag_end_h).map(|m| m.value)),
             cell(e.and_then(|e| e.inflection_time_h).map(|m| m.value)),
-            String::new(),
-            cell(
-                e.and_then(|e| saturation_eta_h(e, replay.options.alert_fraction))
-                    .map(|m| m.value),
-            ),
-            String::new(),
+            step.phase.as_str().to_owned(),
+            cell(step.saturation_eta_h.map(|m| m.value)),
+            cell(step.saturation_eta_h.map(|m| m.sd)),
+            alert_word(step).to_owned(),
+            step.alert_active.to_string(),
+            step.events
+                .iter()
+                .map(|e| online::event_name(&e.event))
+                .collect::<Vec<_>>()
+                .join(";"),
         ];
         let _ = writeln!(text, "{}", cells.join(","));
     }
@@ -248,7 +268,41 @@ fn num64(x: f64) -> Json {
 pub fn summary(replay: &Replay) -> Json {
     let e = replay.last_estimate();
     let e = e.as_ref();
+    let last = replay.steps.last();
     let cap = e.and_then(|e| e.capacity);
+    let mut alerts = Vec::new();
+    let mut phases = Vec::new();
+    let mut faults = serde_json::Map::new();
+    for step in &replay.steps {
+        for te in &step.events {
+            let time_h = num(Some(te.time_h));
+            match te.event {
+                Event::SaturationAlert { eta_h, capacity } => alerts.push(json!({
+                    "kind": "saturation_alert",
+                    "time_h": time_h,
+                    "eta_h": num(Some(eta_h)),
+                    "capacity": num(Some(capacity)),
+                })),
+                Event::SaturationRearmed => alerts.push(json!({
+                    "kind": "saturation_rearmed",
+                    "time_h": time_h,
+                })),
+                Event::Phase { from, to } => phases.push(json!({
+                    "time_h": time_h,
+                    "from": from.as_str(),
+                    "to": to.as_str(),
+                })),
+                Event::Fault { fault, .. } => {
+                    let n = faults
+                        .get(fault.as_str())
+                        .and_then(Json::as_u64)
+                        .unwrap_or(0);
+                    faults.insert(fault.as_str().to_owned(), json!(n + 1));
+                }
+                _ => {}
+            }
+        }
+    }
     let batch = match &replay.batch.fit {
         Ok(f) => json!({
             "method": "unweighted least squares of the logistic, readings beyond 4 robust sd set aside, since the last restart",
@@ -282,14 +336,20 @@ pub fn summary(replay: &Replay) -> Json {
         "doubling_time_sd_h": num(e.map(|e| e.doubling_time_h.sd)),
         "inflection_time_h": num(e.and_then(|e| e.inflection_time_h).map(|m| m.value)),
         "inflection_time_sd_h": num(e.and_then(|e| e.inflection_time_h).map(|m| m.sd)),
-        "saturation_eta_h": num(e.and_then(|e| saturation_eta_h(e, replay.options.alert_fraction)).map(|m| m.value)),
+        "saturation_eta_h": num(last.and_then(|s| s.saturation_eta_h).map(|m| m.value)),
+        "saturation_eta_sd_h": num(last.and_then(|s| s.saturation_eta_h).map(|m| m.sd)),
         "noise_scale": num(e.map(|e| e.noise_scale)),
         "alert_fraction": replay.options.alert_fraction,
         "alert_lead_h": replay.options.alert_lead_h,
-        "phase": Json::Null,
-        "first_saturation_alert_h": Json::Null,
-        "alerts": [],
-        "monitor": "not in this build: phase and alerts are null",
+        "phase": last.map_or(Json::Null, |s| json!(s.phase.as_str())),
+        "alert_active": last.is_some_and(|s| s.alert_active),
+        "first_saturation_alert_h": alerts
+            .iter()
+            .find(|a| a["kind"] == "saturation_alert")
+            .map_or(Json::Null, |a| a["time_h"].clone()),
+        "alerts": alerts,
+        "phases": phases,
+        "faults": faults,
         "batch_fit": batch,
     })
 }
