@@ -4,8 +4,9 @@
 //! The culture is invented (see `scenarios/demo.toml`): logistic growth to
 //! 1.5 OD at 0.7 per hour with its midpoint at 8 h, read every 5 minutes for
 //! 20 h with noise 0.003 OD + 1 % and a few bubbles. The summary is a table of
-//! quantities against sources — the closed-form truth and the batch fit so
-//! far; another source (the online estimate) is one more [`Column`].
+//! quantities against sources — the closed-form truth, the batch fit and the
+//! online estimate the device's `f32` estimator holds after the last reading
+//! — followed by the culture monitor's phases and saturation alert.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -13,7 +14,10 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result};
 use plateau::GrowthCurve;
 
+use plateau::{Estimate, Event, Measured, Outcome};
+
 use crate::batch::{LogisticFit, fit_logistic, fit_logistic_trimmed};
+use crate::online::{self, Settings, Step};
 use crate::plot::{BandCurve, Marker, Phase, PlotData, PlotPoint};
 use crate::scenario::{Kind, Reading, Scenario, generate};
 
@@ -105,6 +109,30 @@ impl CurveSummary {
         })
     }
 
+    /// The online estimate's values with their sds. The capacity is the
+    /// fitted one even when the estimator would not yet publish it; the lag
+    /// is NaN while the estimator gives none.
+    #[must_use]
+    pub fn of_estimate(e: &Estimate<f32>) -> Self {
+        let m = |m: Measured<f32>| Value {
+            value: f64::from(m.value),
+            sd: Some(f64::from(m.sd)),
+        };
+        let nan = Value {
+            value: f64::NAN,
+            sd: None,
+        };
+        Self {
+            capacity_od: m(e.capacity.unwrap_or_else(|| e.capacity_unchecked())),
+            rate_per_h: m(e.rate_per_h),
+            doubling_time_h: m(e.doubling_time_h),
+            lag_h: e.lag_end_h.map_or(nan, m),
+            time_to_target_h: e
+                .time_to_fraction(crate::online::to_device(TARGET_FRACTION))
+                .map_or(nan, m),
+        }
+    }
+
     fn rows(&self) -> [(&'static str, Value, usize); 5] {
         [
             ("capacity (OD)", self.capacity_od, 4),
@@ -194,7 +222,9 @@ pub struct DemoReport {
     pub fit: LogisticFit,
     /// Per reading: set aside by the batch fit as an outlier.
     pub rejected: Vec<bool>,
-    /// Truth and batch fit side by side.
+    /// The device's estimator and monitor, reading by reading.
+    pub steps: Vec<Step>,
+    /// Truth, batch fit and online estimate side by side.
     pub summary: Summary,
     /// The plot that was written.
     pub plot: PlotData,
@@ -243,19 +273,38 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
         .context("batch fit of the demo stream")?;
     let truth = crate::scenario::Truth::new(scenario)?;
     let curve = scenario.truth()?;
-    let summary = Summary {
-        columns: vec![
-            Column {
-                name: "truth".into(),
-                summary: CurveSummary::of_curve(curve.as_ref())?,
-            },
-            Column {
-                name: "batch fit (± sd)".into(),
-                summary: CurveSummary::of_fit(&fit)?,
-            },
-        ],
+    // The device, configured with the scenario's noise model and blank.
+    let settings = Settings {
+        noise_floor_od: Some(scenario.noise.floor_od),
+        noise_fraction: Some(scenario.noise.fraction),
+        blank_od: Some(scenario.sensor.blank_od.max(0.0)),
+        ceiling_od: scenario.sensor.ceiling_od,
+        gate_sigma: None,
     };
-    let plot = plot_data(scenario, &readings, &rejected, &fit, &truth, &summary);
+    let stream: Vec<(f64, f64)> = readings.iter().map(|r| (r.time_h, r.od)).collect();
+    let steps = online::run(
+        settings.config()?,
+        online::monitor_config(TARGET_FRACTION, 1.0)?,
+        &stream,
+    );
+    let mut columns = vec![
+        Column {
+            name: "truth".into(),
+            summary: CurveSummary::of_curve(curve.as_ref())?,
+        },
+        Column {
+            name: "batch fit (± sd)".into(),
+            summary: CurveSummary::of_fit(&fit)?,
+        },
+    ];
+    if let Some(e) = steps.last().and_then(|s| s.estimate) {
+        columns.push(Column {
+            name: "online f32 (± sd)".into(),
+            summary: CurveSummary::of_estimate(&e),
+        });
+    }
+    let summary = Summary { columns };
+    let plot = plot_data(scenario, &steps, &fit, &truth, &summary);
     crate::log::write_atomically(&paths.csv, |w| crate::scenario::write_csv(&readings, w))?;
     crate::plot::write_svg(&paths.svg, &plot)?;
     Ok(DemoReport {
@@ -263,65 +312,107 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
         readings,
         fit,
         rejected,
+        steps,
         summary,
         plot,
     })
 }
 
+/// The monitor's phases as (start, end, phase name) intervals.
+#[must_use]
+pub fn phase_intervals(steps: &[Step], end_h: f64) -> Vec<(f64, f64, &'static str)> {
+    let mut out: Vec<(f64, f64, &'static str)> = Vec::new();
+    for s in steps.iter().filter(|s| s.time_h.is_finite()) {
+        let name = s.phase.as_str();
+        match out.last_mut() {
+            Some(last) if last.2 == name => last.1 = s.time_h,
+            Some(last) => {
+                last.1 = s.time_h;
+                out.push((s.time_h, s.time_h, name));
+            }
+            None => out.push((s.time_h, s.time_h, name)),
+        }
+    }
+    if let Some(last) = out.last_mut() {
+        last.1 = last.1.max(end_h);
+    }
+    out
+}
+
+/// Time of the first saturation alert the monitor raised, hours.
+#[must_use]
+pub fn first_alert_h(steps: &[Step]) -> Option<f64> {
+    steps.iter().find_map(|s| {
+        s.events
+            .iter()
+            .any(|e| matches!(e.event, Event::SaturationAlert { .. }))
+            .then_some(s.time_h)
+    })
+}
+
 fn plot_data(
     scenario: &Scenario,
-    readings: &[Reading],
-    rejected: &[bool],
+    steps: &[Step],
     fit: &LogisticFit,
     truth: &crate::scenario::Truth,
     summary: &Summary,
 ) -> PlotData {
     let s = scenario.sampling;
+    let end_h = s.start_h + s.duration_h;
     let grid: Vec<f64> = (0..=400)
         .map(|i| s.start_h + s.duration_h * f64::from(i) / 400.0)
         .collect();
     let curve = fit.curve();
-    let t = &summary.columns[0].summary;
     let fit_target = summary.columns[1].summary.time_to_target_h.value;
-    PlotData {
-        title: format!("{} — batch fit", scenario.name),
-        readings: readings
+    let mut estimates = vec![BandCurve {
+        label: "batch fit".into(),
+        time_h: grid.clone(),
+        value: grid.iter().map(|&x| curve.value(x)).collect(),
+        sd: grid.iter().map(|&x| fit.value_sd(x)).collect(),
+    }];
+    if let Some(e) = steps.last().and_then(|s| s.estimate) {
+        let at: Vec<_> = grid
             .iter()
-            .zip(rejected)
-            .map(|(r, &rej)| PlotPoint {
-                time_h: r.time_h,
-                od: r.od,
-                rejected: rej,
+            .map(|&x| e.value_at(online::to_device(x)))
+            .collect();
+        estimates.push(BandCurve {
+            label: "online f32 (final)".into(),
+            time_h: grid.clone(),
+            value: at.iter().map(|m| f64::from(m.value)).collect(),
+            sd: at.iter().map(|m| f64::from(m.sd)).collect(),
+        });
+    }
+    let mut markers = vec![Marker {
+        time_h: fit_target,
+        label: "90 % of capacity (fit)".into(),
+    }];
+    if let Some(t) = first_alert_h(steps) {
+        markers.push(Marker {
+            time_h: t,
+            label: "saturation alert (monitor)".into(),
+        });
+    }
+    PlotData {
+        title: format!("{} — batch fit and online estimate", scenario.name),
+        readings: steps
+            .iter()
+            .map(|st| PlotPoint {
+                time_h: st.time_h,
+                od: st.value,
+                rejected: !st.outcome.is_accepted(),
             })
             .collect(),
         truth: grid.iter().map(|&x| (x, truth.od(x))).collect(),
-        estimates: vec![BandCurve {
-            label: "batch fit".into(),
-            time_h: grid.clone(),
-            value: grid.iter().map(|&x| curve.value(x)).collect(),
-            sd: grid.iter().map(|&x| fit.value_sd(x)).collect(),
-        }],
-        markers: vec![Marker {
-            time_h: fit_target,
-            label: "90 % of capacity (fit)".into(),
-        }],
-        phases: vec![
-            Phase {
-                start_h: s.start_h,
-                end_h: t.lag_h.value,
-                label: "lag (truth)".into(),
-            },
-            Phase {
-                start_h: t.lag_h.value,
-                end_h: t.time_to_target_h.value,
-                label: "growth".into(),
-            },
-            Phase {
-                start_h: t.time_to_target_h.value,
-                end_h: s.start_h + s.duration_h,
-                label: "near plateau".into(),
-            },
-        ],
+        estimates,
+        markers,
+        phases: phase_intervals(steps, end_h)
+            .into_iter()
+            .map(|(start_h, end_h, name)| Phase {
+                start_h,
+                end_h,
+                label: format!("{name} (monitor)"),
+            })
+            .collect(),
     }
 }
 
@@ -363,10 +454,47 @@ pub fn describe(report: &DemoReport, paths: &DemoPaths) -> String {
          (in noise sds), {} points.",
         report.fit.residual_sd, report.fit.points
     );
+    let online_rejected = report
+        .steps
+        .iter()
+        .filter(|s| !s.outcome.is_accepted())
+        .count();
+    let online_caught = report
+        .steps
+        .iter()
+        .zip(&report.readings)
+        .filter(|(s, r)| r.kind == Kind::Spike && !s.outcome.is_accepted())
+        .count();
+    let restarts = report
+        .steps
+        .iter()
+        .filter(|s| s.outcome == Outcome::Restarted)
+        .count();
     let _ = writeln!(
         out,
-        "  The online estimate will appear as a further column once it is wired in."
+        "  online: the device's f32 estimator fed reading by reading; it rejected \
+         {online_rejected} reading(s), {online_caught} of them bubbles; {restarts} restart(s)."
     );
+    let phases: Vec<String> =
+        phase_intervals(&report.steps, s.sampling.start_h + s.sampling.duration_h)
+            .iter()
+            .map(|(a, _, name)| format!("{name} from {a:.2} h"))
+            .collect();
+    let _ = writeln!(out, "  monitor phases: {}", phases.join(", "));
+    let truth_target = report.summary.columns[0].summary.time_to_target_h.value;
+    match first_alert_h(&report.steps) {
+        Some(t) => {
+            let _ = writeln!(
+                out,
+                "  saturation alert at {t:.2} h; the truth reaches 90 % of capacity at \
+                 {truth_target:.2} h ({:.2} h of warning).",
+                truth_target - t
+            );
+        }
+        None => {
+            let _ = writeln!(out, "  no saturation alert was raised.");
+        }
+    }
     let _ = writeln!(
         out,
         "\n  wrote {} (readings) and {} (plot)",
