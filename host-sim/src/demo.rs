@@ -541,6 +541,25 @@ mod tests {
             assert!(sd > 0.0);
             assert!((f.value - t.value).abs() < 4.0 * sd, "{f:?} vs {t:?}");
         }
+        // The online f32 estimate, third column, also lies within 4 of its
+        // own sds of the closed-form truth, and the monitor alerted before
+        // the truth reached 90 % of its capacity.
+        let online = &report.summary.columns[2].summary;
+        for (t, f) in [
+            (truth.capacity_od, online.capacity_od),
+            (truth.rate_per_h, online.rate_per_h),
+            (truth.time_to_target_h, online.time_to_target_h),
+        ] {
+            let sd = f.sd.unwrap();
+            assert!(sd > 0.0);
+            assert!((f.value - t.value).abs() < 4.0 * sd, "{f:?} vs {t:?}");
+        }
+        let alert = first_alert_h(&report.steps).unwrap();
+        assert!(alert < truth.time_to_target_h.value, "{alert}");
+        assert_eq!(
+            phase_intervals(&report.steps, 20.0).last().unwrap().2,
+            "stationary"
+        );
         // Weighted by the true noise model, σ̂ is near 1 noise sd.
         assert!(
             (0.7..1.3).contains(&report.fit.residual_sd),
