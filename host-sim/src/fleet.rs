@@ -670,6 +670,14 @@ fn pct(x: f64) -> String {
     }
 }
 
+fn pct2(x: f64) -> String {
+    if x.is_finite() {
+        format!("{:.2}", 100.0 * x)
+    } else {
+        "-".into()
+    }
+}
+
 fn f2(x: f64) -> String {
     if x.is_finite() {
         format!("{x:.2}")
@@ -716,13 +724,13 @@ pub fn render(report: &FleetReport) -> String {
                 at,
                 pct(f.no_estimate),
                 pct(f.no_capacity),
-                pct(f.capacity_rmse_online),
-                pct(f.capacity_rmse_batch),
-                pct(f.capacity_rmse_weighted),
+                pct2(f.capacity_rmse_online),
+                pct2(f.capacity_rmse_batch),
+                pct2(f.capacity_rmse_weighted),
                 f2(f.capacity_ratio),
-                pct(f.rate_rmse_online),
-                pct(f.rate_rmse_batch),
-                pct(f.rate_rmse_weighted),
+                pct2(f.rate_rmse_online),
+                pct2(f.rate_rmse_batch),
+                pct2(f.rate_rmse_weighted),
                 f2(f.rate_ratio),
                 f2(f.capacity_crb_online),
                 f2(f.capacity_crb_batch),
