@@ -53,7 +53,7 @@ pub struct EstimatorConfig<T = f32> {
 }
 
 /// The longest run of held-back readings the estimator keeps (fixed memory).
-pub(crate) const MAX_HELD: usize = 8;
+pub(crate) const MAX_HELD: usize = 4;
 
 impl<T: Real> Default for EstimatorConfig<T> {
     fn default() -> Self {
@@ -140,13 +140,13 @@ impl<T: Real> EstimatorConfig<T> {
     }
 
     /// How many consecutive gated readings make the estimator stop calling
-    /// them spikes (1 to 8, default 4). If they all sit below
+    /// them spikes (1 to 4, default 4). If they all sit below
     /// `dilution_ratio` × prediction the culture was diluted and the estimator
     /// restarts from them; otherwise they are accepted, so the gate can never
     /// starve the estimator.
     ///
     /// # Errors
-    /// Out of 1..=8.
+    /// Out of 1..=4.
     pub fn max_consecutive_rejections(mut self, count: u8) -> Result<Self, Error> {
         if count == 0 || usize::from(count) > MAX_HELD {
             return Err(Error::OutOfRange {
