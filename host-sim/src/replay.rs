@@ -16,8 +16,11 @@
 //! * `status`: `accepted`, `restarted` or the rejection reason.
 //! * `capacity`, `capacity_sd`: published capacity above the blank (empty
 //!   while the estimator cannot place it).
-//! * `lag_h`: end of the lag by the tangent construction, hours on the log's
-//!   clock (the lag's length when the log starts at 0 h at inoculation).
+//! * `lag_h`: the estimator's `lag_end_h`, `t_m` − 2/r: where the tangent at
+//!   the inflection of the fitted OD curve crosses zero, hours on the log's
+//!   clock. It is a construction on the linear OD scale, not the lag on
+//!   ln(OD) that microbiologists usually mean: a culture growing
+//!   exponentially from its first reading still gets a positive value.
 //! * `inflection_time_h`, `saturation_eta_h`: hours on the log's clock;
 //!   `saturation_eta_h` is the monitor's forecast of when the culture reaches
 //!   the alert fraction of its capacity, given only while a capacity is
