@@ -146,18 +146,13 @@ fn gaps_and_jitter_keep_it_on_track() {
 }
 
 #[test]
-fn lag_and_inflection_match_the_closed_form() {
+fn inflection_and_forecast_match_the_closed_form() {
     let truth = reference_culture();
-    // Tangent lag of the logistic: t_m − 2/r (the tangent at the inflection,
-    // slope rK/4, through (t_m, K/2); FACTS.md logistic identities).
-    let lag = truth.midpoint_h() - 2.0 / truth.rate_per_h();
     let readings = Stream::default().generate(&truth, 7);
     let est = run_f32::<16>(EstimatorConfig::new(), &readings)
         .estimate()
         .unwrap();
-    let l = est.lag_end_h.unwrap();
     let m = est.inflection_time_h.unwrap();
-    assert!((f64::from(l.value) - lag).abs() < 3.0 * f64::from(l.sd).max(0.01));
     assert!((f64::from(m.value) - 8.0).abs() < 3.0 * f64::from(m.sd).max(0.01));
     assert!((f64::from(est.doubling_time_h.value) - core::f64::consts::LN_2 / 0.7).abs() < 0.02);
     // Time to 90 % of capacity: t_m + ln 9 / r (FACTS.md).
@@ -166,6 +161,55 @@ fn lag_and_inflection_match_the_closed_form() {
         (f64::from(t90.value) - (8.0 + 9.0_f64.ln() / 0.7)).abs()
             < 3.0 * f64::from(t90.sd).max(0.01)
     );
+    // This culture starts at 0.0055 OD, under the 0.003 OD noise floor's
+    // reach: its starting level, and so its lag, cannot be told.
+    assert!(est.lag_h.is_none());
+}
+
+/// Lag by the tangent construction on ln y against the Baranyi–Roberts model,
+/// whose λ is defined that way (Baranyi & Roberts 1994, h0 = μmax λ; FACTS.md),
+/// and against a logistic with no lag at all.
+#[test]
+fn lag_matches_the_baranyi_lambda_and_is_zero_without_one() {
+    use plateau::{Baranyi, Population};
+    // Invented: 0.02 OD inoculum, 1.5 OD capacity, 0.7 per hour, 3 h lag.
+    let baranyi = Population::new(
+        Baranyi::<f64>::new((1.5_f64 / 0.02).ln(), 0.7, 3.0).unwrap(),
+        0.02,
+    )
+    .unwrap();
+    let stream = Stream {
+        end_h: 24.0,
+        ..Stream::default()
+    };
+    let mut errors = Vec::new();
+    for seed in 0..20 {
+        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&baranyi, seed));
+        let lag = est
+            .estimate()
+            .unwrap()
+            .lag_h
+            .expect("starting level is clear of the noise");
+        errors.push(f64::from(lag.value) - 3.0);
+    }
+    let mean = errors.iter().sum::<f64>() / 20.0;
+    eprintln!("Baranyi lag: mean error {mean:.3} h");
+    // The logistic fitted to a Baranyi curve reads the lag short, because
+    // its rate comes out below μmax (0.68 against 0.7 per hour): measured
+    // mean error −0.37 h with libm, −0.40 h with fast-math. A known limit of
+    // the one-family online model (see the README).
+    assert!(mean < 0.0 && mean > -0.5, "mean lag error {mean:.3} h");
+    // A logistic from 0.05 OD (t_m = ln 29 / 0.7 = 4.81 h) grows from the
+    // first reading: its λ is at the start, within the lag's own sd.
+    let plain = Logistic::<f64>::from_initial(1.5, 0.7, 0.05).unwrap();
+    for seed in 0..10 {
+        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&plain, seed));
+        let lag = est.estimate().unwrap().lag_h.unwrap();
+        assert!(
+            f64::from(lag.value).abs() < 3.0 * f64::from(lag.sd) + 0.1,
+            "seed {seed}: {lag:?}"
+        );
+    }
 }
 
 #[test]

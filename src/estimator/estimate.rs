@@ -118,11 +118,17 @@ pub struct Estimate<T = f32> {
     /// Inflection (midpoint) time `t_m`, hours on the caller's clock; `None`
     /// while the capacity is.
     pub inflection_time_h: Option<Measured<T>>,
-    /// Lag by the tangent construction, `t_m` − 2/r, hours on the caller's
-    /// clock (this is Zwietering's λ for the logistic); `None` while the
-    /// capacity is.
+    /// Lag, hours: from the first reading (since the last restart) to the
+    /// time λ at which the exponential-phase line of the fitted curve on the
+    /// log scale, ln y = ln K − r (`t_m` − t), reaches the starting level y₀
+    /// (the median of the first three readings): λ = `t_m` − ln(K / y₀) / r.
+    /// This is the tangent construction on ln y used by Zwietering et al.
+    /// (1990) and by Baranyi & Roberts (1994); a culture that grows from its
+    /// first reading has a lag near zero. `None` while the capacity is, or
+    /// when the starting level is lost in the noise (its relative sd above
+    /// 0.5). Its sd includes the uncertainty of y₀.
     #[doc(alias = "lambda")]
-    pub lag_end_h: Option<Measured<T>>,
+    pub lag_h: Option<Measured<T>>,
     /// The fitted signal (blank included) at the latest accepted reading.
     pub fitted_value: Measured<T>,
     /// Time of the latest accepted reading, hours.

@@ -35,6 +35,10 @@
 //!    twice the largest reading, sd 2 in ln units) keeps the fit off the
 //!    K → ∞ ridge during exponential growth, and the capacity is published
 //!    only once its relative sd is below `capacity_max_rel_sd`.
+//! 6. **Lag** by the tangent construction on the log scale: where the fitted
+//!    curve's exponential-phase line meets the starting level (see
+//!    [`Estimate::lag_h`]). The logistic has no lag of its own; a lag phase in
+//!    the data shows as a later midpoint than the start level implies.
 //!
 //! Why not an extended Kalman filter: on this problem a textbook EKF on
 //! (ln y, r, ln K) lets the capacity run away before the inflection, when it
@@ -453,6 +457,33 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
     }
 
+    /// The lag λ − (first reading), hours, with its sd (see
+    /// [`Estimate::lag_h`]). λ = `t_m` − (ln K − ln y₀)/r, so
+    /// ∂λ/∂ln K = −1/r, ∂λ/∂ln r = ln(K/y₀)/r, ∂λ/∂`t_m` = 1 and
+    /// ∂λ/∂ln y₀ = 1/r; y₀ is the median of three readings, whose variance is
+    /// (π/2)·sd²/3 for normal noise (the median's asymptotic efficiency,
+    /// a textbook result), with sd from the noise model and learnt scale.
+    fn lag(&self, theta: &[T; 3], cov: &Sym3<T>) -> Option<Measured<T>> {
+        let y0 = self.first_median;
+        if !(y0 > T::ZERO) {
+            return None;
+        }
+        let sd_y0 = self.config.noise_sd(y0) * self.noise_scale2.sqrt();
+        let var_ln_y0 = T::from_f64(core::f64::consts::FRAC_PI_2 / 3.0) * sd_y0 * sd_y0 / (y0 * y0);
+        if !(var_ln_y0 < T::from_f64(0.25)) {
+            return None;
+        }
+        let r = theta[1].exp();
+        let log_ratio = theta[0] - y0.ln();
+        let value = theta[2] - log_ratio / r;
+        let g = [-T::ONE / r, log_ratio / r, T::ONE];
+        let var = cov.quadratic(&g) + var_ln_y0 / (r * r);
+        (value.is_finite() && var.is_finite()).then(|| Measured {
+            value,
+            sd: var.max(T::ZERO).sqrt(),
+        })
+    }
+
     /// The current estimate, or `None` before the readings show growth.
     #[must_use]
     pub fn estimate(&self) -> Option<Estimate<T>> {
@@ -479,13 +510,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             value: theta[2] + self.origin_h,
             sd: cov.get(2, 2).max(T::ZERO).sqrt(),
         };
-        // lag = `t_m` − 2/r: ∂/∂`t_m` = 1, ∂/∂ln r = 2/r.
-        let two_over_r = T::TWO / r;
-        let lag_var = cov.quadratic(&[T::ZERO, two_over_r, T::ONE]);
-        let lag = Measured {
-            value: inflection.value - two_over_r,
-            sd: lag_var.max(T::ZERO).sqrt(),
-        };
+        let lag = self.lag(&theta, &cov).filter(|_| published);
         let (f, g) = model(&theta, self.latest_h);
         Some(Estimate {
             capacity: published.then_some(capacity),
@@ -498,7 +523,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 sd: T::LN_2 / r * sd_ln_r,
             },
             inflection_time_h: published.then_some(inflection),
-            lag_end_h: published.then_some(lag),
+            lag_h: lag,
             fitted_value: Measured {
                 value: f + self.config.blank,
                 sd: cov.quadratic(&g).max(T::ZERO).sqrt(),
