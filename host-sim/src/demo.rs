@@ -53,25 +53,31 @@ pub struct CurveSummary {
     pub rate_per_h: Value,
     /// Doubling time ln 2 / rate, hours.
     pub doubling_time_h: Value,
-    /// Lag by the tangent construction, hours.
+    /// Lag by the tangent construction on ln OD, hours from the first
+    /// reading: where the exponential-phase line through the inflection,
+    /// ln y = ln K − r (`t_m` − t), meets the starting level (the estimator's
+    /// definition; exact for the logistic).
     pub lag_h: Value,
     /// Time to reach [`TARGET_FRACTION`] of the capacity, hours.
     pub time_to_target_h: Value,
 }
 
 impl CurveSummary {
-    /// Exact values of a closed-form curve (no sds).
+    /// Exact values of a closed-form curve (no sds); the lag from its value
+    /// at `start_h`, the first reading.
     ///
     /// # Errors
     ///
     /// The curve never reaches the target level.
-    pub fn of_curve(curve: &dyn GrowthCurve<f64>) -> Result<Self> {
+    pub fn of_curve(curve: &dyn GrowthCurve<f64>, start_h: f64) -> Result<Self> {
         let capacity = curve.upper_asymptote();
+        let rate = curve.max_specific_rate_per_h();
+        let y0 = curve.value(start_h);
         Ok(Self {
             capacity_od: Value::exact(capacity),
-            rate_per_h: Value::exact(curve.max_specific_rate_per_h()),
+            rate_per_h: Value::exact(rate),
             doubling_time_h: Value::exact(curve.doubling_time_h()),
-            lag_h: Value::exact(curve.lag_h()),
+            lag_h: Value::exact(curve.inflection().time_h - (capacity / y0).ln() / rate - start_h),
             time_to_target_h: Value::exact(
                 curve
                     .time_to_reach(TARGET_FRACTION * capacity)
@@ -80,19 +86,37 @@ impl CurveSummary {
         })
     }
 
-    /// The batch fit's values with delta-method sds.
+    /// The batch fit's values with delta-method sds. The lag takes the
+    /// starting level as the device does, `start_od` (the median of the
+    /// first three readings, whose sd is `start_sd_od`), from `start_h`; its
+    /// sd includes the starting level's (the median of three normal readings
+    /// has variance (π/2)·sd²/3, a textbook result).
     ///
     /// # Errors
     ///
     /// Never in practice (the fitted curve always reaches 90 % of its own
     /// capacity); kept fallible like [`of_curve`](Self::of_curve).
-    pub fn of_fit(fit: &LogisticFit) -> Result<Self> {
-        let exact = Self::of_curve(&fit.curve())?;
-        let r = fit.rate_per_h;
+    pub fn of_fit(
+        fit: &LogisticFit,
+        start_h: f64,
+        start_od: f64,
+        start_sd_od: f64,
+    ) -> Result<Self> {
+        let exact = Self::of_curve(&fit.curve(), start_h)?;
+        let (k, r, tm) = (fit.capacity, fit.rate_per_h, fit.midpoint_h);
         let ln_target = (TARGET_FRACTION / (1.0 - TARGET_FRACTION)).ln();
         let with = |v: Value, gradient: [f64; 3]| Value {
             value: v.value,
             sd: Some(fit.sd_of(gradient)),
+        };
+        // λ = t_m − ln(K / y0) / r − start: ∂/∂K = −1/(rK),
+        // ∂/∂r = ln(K/y0)/r², ∂/∂t_m = 1, ∂/∂ln y0 = 1/r.
+        let log_ratio = (k / start_od).ln();
+        let var_ln_y0 = std::f64::consts::FRAC_PI_2 / 3.0 * (start_sd_od / start_od).powi(2);
+        let lag_fit_sd = fit.sd_of([-1.0 / (r * k), log_ratio / (r * r), 1.0]);
+        let lag = Value {
+            value: tm - log_ratio / r - start_h,
+            sd: Some((lag_fit_sd.powi(2) + var_ln_y0 / (r * r)).sqrt()),
         };
         Ok(Self {
             capacity_od: with(exact.capacity_od, [1.0, 0.0, 0.0]),
@@ -102,8 +126,7 @@ impl CurveSummary {
                 exact.doubling_time_h,
                 [0.0, -std::f64::consts::LN_2 / (r * r), 0.0],
             ),
-            // t_m − 2 / r
-            lag_h: with(exact.lag_h, [0.0, 2.0 / (r * r), 1.0]),
+            lag_h: lag,
             // t_m + ln(p / (1 − p)) / r
             time_to_target_h: with(exact.time_to_target_h, [0.0, -ln_target / (r * r), 1.0]),
         })
@@ -126,7 +149,7 @@ impl CurveSummary {
             capacity_od: m(e.capacity.unwrap_or_else(|| e.capacity_unchecked())),
             rate_per_h: m(e.rate_per_h),
             doubling_time_h: m(e.doubling_time_h),
-            lag_h: e.lag_end_h.map_or(nan, m),
+            lag_h: e.lag_h.map_or(nan, m),
             time_to_target_h: e
                 .time_to_fraction(crate::online::to_device(TARGET_FRACTION))
                 .map_or(nan, m),
@@ -138,7 +161,7 @@ impl CurveSummary {
             ("capacity (OD)", self.capacity_od, 4),
             ("growth rate (per h)", self.rate_per_h, 4),
             ("doubling time (h)", self.doubling_time_h, 3),
-            ("lag, tangent (h)", self.lag_h, 2),
+            ("lag, tangent on ln OD (h)", self.lag_h, 2),
             ("time to 90 % of capacity (h)", self.time_to_target_h, 2),
         ]
     }
@@ -287,14 +310,25 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
         online::monitor_config(TARGET_FRACTION, 1.0)?,
         &stream,
     );
+    // The starting level as the device takes it: the median of the first
+    // three readings above the blank.
+    let start_h = readings.first().map_or(0.0, |r| r.time_h);
+    let mut first: Vec<f64> = readings
+        .iter()
+        .take(3)
+        .map(|r| r.od - scenario.sensor.blank_od)
+        .collect();
+    first.sort_by(f64::total_cmp);
+    let y0 = first.get(first.len() / 2).copied().unwrap_or(f64::NAN);
+    let start_sd = scenario.noise.floor_od + scenario.noise.fraction * y0.max(0.0);
     let mut columns = vec![
         Column {
             name: "truth".into(),
-            summary: CurveSummary::of_curve(curve.as_ref())?,
+            summary: CurveSummary::of_curve(curve.as_ref(), start_h)?,
         },
         Column {
             name: "batch fit (± sd)".into(),
-            summary: CurveSummary::of_fit(&fit)?,
+            summary: CurveSummary::of_fit(&fit, start_h, y0, start_sd)?,
         },
     ];
     if let Some(e) = steps.last().and_then(|s| s.estimate) {
@@ -523,11 +557,13 @@ mod tests {
         assert_eq!(report.readings.len(), 241);
         let truth = &report.summary.columns[0].summary;
         // Closed forms of the invented logistic K = 1.5, r = 0.7, t_m = 8
-        // (FACTS.md, logistic definitions): doubling ln 2 / r, tangent lag
-        // t_m − 2/r, time to 90 % t_m + ln 9 / r.
+        // (FACTS.md, logistic definitions): doubling ln 2 / r, time to 90 %
+        // t_m + ln 9 / r. Lag on ln OD from the first reading t0 (≈ 0):
+        // t_m − ln(K / y(t0)) / r − t0 = −ln(1 + e^(−r (t_m − t0))) / r,
+        // about −0.0053 h: a logistic has (almost) no lag.
         assert!((truth.capacity_od.value - 1.5).abs() < 1e-12);
         assert!((truth.doubling_time_h.value - 2f64.ln() / 0.7).abs() < 1e-12);
-        assert!((truth.lag_h.value - (8.0 - 2.0 / 0.7)).abs() < 1e-12);
+        assert!((truth.lag_h.value + (1.0 + (-5.6f64).exp()).ln() / 0.7).abs() < 1e-4);
         assert!((truth.time_to_target_h.value - (8.0 + 9f64.ln() / 0.7)).abs() < 1e-9);
         // The batch fit lies within 4 of its own sds of the truth.
         let fit = &report.summary.columns[1].summary;
@@ -578,7 +614,7 @@ mod tests {
     #[test]
     fn summary_takes_more_columns() {
         let curve = plateau::Logistic::from_midpoint(1.0, 0.5, 6.0).unwrap();
-        let c = CurveSummary::of_curve(&curve).unwrap();
+        let c = CurveSummary::of_curve(&curve, 0.0).unwrap();
         let mut s = Summary::default();
         for name in ["truth", "batch fit", "online"] {
             s.columns.push(Column {
@@ -608,7 +644,7 @@ mod tests {
             })
             .collect();
         let fit = fit_logistic(&t, &y, None).unwrap();
-        let s = CurveSummary::of_fit(&fit).unwrap();
+        let s = CurveSummary::of_fit(&fit, 0.0, y[0], 0.01).unwrap();
         let h = 1e-6;
         let d = (2f64.ln() / (fit.rate_per_h + h) - 2f64.ln() / (fit.rate_per_h - h)) / (2.0 * h);
         let numeric = d.abs() * fit.rate_sd_per_h;

@@ -16,11 +16,8 @@
 //! * `status`: `accepted`, `restarted` or the rejection reason.
 //! * `capacity`, `capacity_sd`: published capacity above the blank (empty
 //!   while the estimator cannot place it).
-//! * `lag_h`: the estimator's `lag_end_h`, `t_m` − 2/r: where the tangent at
-//!   the inflection of the fitted OD curve crosses zero, hours on the log's
-//!   clock. It is a construction on the linear OD scale, not the lag on
-//!   ln(OD) that microbiologists usually mean: a culture growing
-//!   exponentially from its first reading still gets a positive value.
+//! * `lag_h`: the estimator's lag, hours from the first reading (since the
+//!   last restart): the tangent construction on ln OD.
 //! * `inflection_time_h`, `saturation_eta_h`: hours on the log's clock;
 //!   `saturation_eta_h` is the monitor's forecast of when the culture reaches
 //!   the alert fraction of its capacity, given only while a capacity is
@@ -237,7 +234,7 @@ pub fn write_csv(replay: &Replay, out: &mut dyn std::io::Write) -> Result<()> {
             cell(e.map(|e| e.rate_per_h.value)),
             cell(e.map(|e| e.rate_per_h.sd)),
             cell(e.map(|e| e.doubling_time_h.value)),
-            cell(e.and_then(|e| e.lag_end_h).map(|m| m.value)),
+            cell(e.and_then(|e| e.lag_h).map(|m| m.value)),
             cell(e.and_then(|e| e.inflection_time_h).map(|m| m.value)),
             step.phase.as_str().to_owned(),
             cell(step.saturation_eta_h.map(|m| m.value)),
@@ -333,8 +330,8 @@ pub fn summary(replay: &Replay) -> Json {
         "capacity_sd": num(cap.map(|c| c.sd)),
         "rate_per_h": num(e.map(|e| e.rate_per_h.value)),
         "rate_sd": num(e.map(|e| e.rate_per_h.sd)),
-        "lag_h": num(e.and_then(|e| e.lag_end_h).map(|m| m.value)),
-        "lag_sd_h": num(e.and_then(|e| e.lag_end_h).map(|m| m.sd)),
+        "lag_h": num(e.and_then(|e| e.lag_h).map(|m| m.value)),
+        "lag_sd_h": num(e.and_then(|e| e.lag_h).map(|m| m.sd)),
         "doubling_time_h": num(e.map(|e| e.doubling_time_h.value)),
         "doubling_time_sd_h": num(e.map(|e| e.doubling_time_h.sd)),
         "inflection_time_h": num(e.and_then(|e| e.inflection_time_h).map(|m| m.value)),
