@@ -278,6 +278,10 @@ pub struct Checkpoint {
     pub weighted: Option<(Est, Est)>,
     /// Cramér–Rao sds of (capacity, rate).
     pub crb: Option<(f64, f64)>,
+    /// True lag on ln OD, hours from the first reading.
+    pub true_lag_h: f64,
+    /// The estimator's lag, hours from the first reading.
+    pub online_lag: Option<Est>,
 }
 
 /// One stream of one run.
@@ -338,6 +342,15 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
     let t_infl = truth.inflection().time_h;
     let true_capacity = truth.upper_asymptote();
     let true_rate = truth.max_specific_rate_per_h();
+    let first_h = g.time_h.first().copied().unwrap_or(c.start_h);
+    // Lag on ln OD from the first reading: Baranyi's λ (Baranyi & Roberts
+    // 1994, FACTS.md) for the lag stream; for the logistic the line
+    // ln K − r (t_m − t) meets the starting level at
+    // t0 − ln(1 + e^(−r (t_m − t0))) / r, just before the first reading.
+    let true_lag_h = match stream {
+        Stream::Lag => c.lag_h - first_h,
+        _ => -(-c.rate_per_h * (c.midpoint_h - first_h)).exp().ln_1p() / c.rate_per_h,
+    };
     let readings: Vec<(f64, f64)> = g.time_h.iter().copied().zip(g.od.iter().copied()).collect();
     let steps = online::run(EstimatorConfig::new(), MonitorConfig::new(), &readings);
     let checkpoint = |upto: usize| -> Checkpoint {
@@ -360,6 +373,8 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
             batch: fit_logistic(t, y, None).ok().map(|f| est(&f)),
             weighted: weighted_fit(t, y, c).map(|f| est(&f)),
             crb,
+            true_lag_h,
+            online_lag: e.and_then(|e| e.lag_h).map(m),
         }
     };
     let at_infl = g.time_h.partition_point(|&t| t <= t_infl);
@@ -444,6 +459,12 @@ pub struct Figures {
     pub capacity_coverage_batch: f64,
     /// Coverage of the unweighted batch rate interval (same runs).
     pub rate_coverage_batch: f64,
+    /// Runs with an online lag.
+    pub lag_runs: usize,
+    /// RMSE of the online lag, hours (absolute: a lag can be zero).
+    pub lag_rmse_online_h: f64,
+    /// Coverage of the online lag's 95 % interval.
+    pub lag_coverage_online: f64,
 }
 
 fn rms(v: &[f64]) -> f64 {
@@ -511,6 +532,14 @@ pub fn figures(points: &[Checkpoint]) -> Figures {
         }
     }
     let (cn, rn) = (cap.0.len(), rate.0.len());
+    let lags: Vec<(f64, bool)> = points
+        .iter()
+        .filter_map(|p| {
+            p.online_lag
+                .map(|l| (l.value - p.true_lag_h, covers(l, p.true_lag_h)))
+        })
+        .collect();
+    let lag_errors: Vec<f64> = lags.iter().map(|l| l.0).collect();
     Figures {
         runs: n,
         no_estimate: share(points.iter().filter(|p| !p.online_any).count(), n),
@@ -540,6 +569,9 @@ pub fn figures(points: &[Checkpoint]) -> Figures {
         rate_coverage_online: share(rate.5, rn),
         capacity_coverage_batch: share(cap.6, cn),
         rate_coverage_batch: share(rate.6, rn),
+        lag_runs: lags.len(),
+        lag_rmse_online_h: rms(&lag_errors),
+        lag_coverage_online: share(lags.iter().filter(|l| l.1).count(), lags.len()),
     }
 }
 
@@ -741,18 +773,29 @@ pub fn render(report: &FleetReport) -> String {
     }
     let _ = writeln!(
         s,
-        "\ncoverage of 95 % intervals, %   (K over runs with a published capacity)"
+        "\ncoverage of 95 % intervals, %   (K over runs with a published capacity; \
+         λ: the estimator's lag on ln OD from the first reading)"
     );
     let _ = writeln!(
         s,
-        "{:<8}{:<6}{:>8}{:>8}{:>8}{:>8}{:>8}{:>8}",
-        "stream", "at", "K runs", "K onl", "K bat", "r runs", "r onl", "r bat"
+        "{:<8}{:<6}{:>8}{:>8}{:>8}{:>8}{:>8}{:>8} | {:>8}{:>10}{:>8}",
+        "stream",
+        "at",
+        "K runs",
+        "K onl",
+        "K bat",
+        "r runs",
+        "r onl",
+        "r bat",
+        "λ runs",
+        "λ RMSE h",
+        "λ onl"
     );
     for sf in &report.streams {
         for (at, f) in [("infl", &sf.inflection), ("end", &sf.end)] {
             let _ = writeln!(
                 s,
-                "{:<8}{:<6}{:>8}{:>8}{:>8}{:>8}{:>8}{:>8}",
+                "{:<8}{:<6}{:>8}{:>8}{:>8}{:>8}{:>8}{:>8} | {:>8}{:>10}{:>8}",
                 sf.stream.name(),
                 at,
                 f.capacity_runs,
@@ -761,6 +804,9 @@ pub fn render(report: &FleetReport) -> String {
                 f.rate_runs,
                 pct(f.rate_coverage_online),
                 pct(f.rate_coverage_batch),
+                f.lag_runs,
+                f2(f.lag_rmse_online_h),
+                pct(f.lag_coverage_online),
             );
         }
     }
