@@ -17,6 +17,7 @@
 //!
 //! Units throughout: time in hours, signal in OD units, rates per hour.
 
+pub mod alerts;
 pub mod batch;
 pub mod demo;
 pub mod fleet;
