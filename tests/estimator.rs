@@ -292,7 +292,7 @@ fn bad_readings_are_rejected_with_a_reason_and_change_nothing() {
         (last + 0.1, f32::NAN, Rejection::NotFinite),
         (f32::INFINITY, 0.5, Rejection::NotFinite),
         (last + 0.1, f32::NEG_INFINITY, Rejection::NotFinite),
-        (last + 0.1, -0.01, Rejection::Negative),
+        (last + 0.1, -0.05, Rejection::Negative),
         (last + 0.1, 3.5, Rejection::AtCeiling),
         (last + 0.1, 9.0, Rejection::AtCeiling),
         (last - 1.0, 0.5, Rejection::TimeBackwards),

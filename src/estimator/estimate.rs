@@ -44,7 +44,9 @@ impl<T: Real> Measured<T> {
 pub enum Rejection {
     /// Time or value is NaN or infinite.
     NotFinite,
-    /// The value is below zero.
+    /// The value lies below the blank by more than noise explains
+    /// (`gate_sigma` × `noise_floor`): a negative or otherwise impossible
+    /// reading.
     Negative,
     /// The value is at or above the configured sensor ceiling (saturated).
     AtCeiling,

@@ -190,7 +190,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if !time_h.is_finite() || !value.is_finite() {
             return Outcome::Rejected(Rejection::NotFinite);
         }
-        if value < T::ZERO {
+        // Near the blank, noise legitimately reads a little below it; only a
+        // value further below than the gate allows for noise is invalid.
+        if value < self.config.blank - self.config.gate_sigma * self.config.noise_floor {
             return Outcome::Rejected(Rejection::Negative);
         }
         if value >= self.config.ceiling {
