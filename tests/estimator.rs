@@ -178,13 +178,16 @@ fn lag_matches_the_baranyi_lambda_and_is_zero_without_one() {
         0.02,
     )
     .unwrap();
+    // A quiet photometer (0.001 OD floor), so the 0.02 OD start is clear.
     let stream = Stream {
         end_h: 24.0,
+        floor: 0.001,
         ..Stream::default()
     };
     let mut errors = Vec::new();
     for seed in 0..20 {
-        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&baranyi, seed));
+        let config = EstimatorConfig::new().noise(0.001, 0.01).unwrap();
+        let est = run_f32::<16>(config, &stream.generate(&baranyi, seed));
         let lag = est
             .estimate()
             .unwrap()
@@ -194,11 +197,13 @@ fn lag_matches_the_baranyi_lambda_and_is_zero_without_one() {
     }
     let mean = errors.iter().sum::<f64>() / 20.0;
     eprintln!("Baranyi lag: mean error {mean:.3} h");
-    // The logistic fitted to a Baranyi curve reads the lag short, because
-    // its rate comes out below μmax (0.68 against 0.7 per hour): measured
-    // mean error −0.37 h with libm, −0.40 h with fast-math. A known limit of
-    // the one-family online model (see the README).
-    assert!(mean < 0.0 && mean > -0.5, "mean lag error {mean:.3} h");
+    // The logistic fitted to a Baranyi curve reads the lag short: its
+    // exponential-phase line is shallower than μmax and the curve's rounded
+    // end of lag pulls it earlier. Measured mean error −0.64 h with libm,
+    // −0.65 h with fast-math (a fifth of the 3 h lag). A known limit of the
+    // one-family online model, stated in the README; the bound keeps it
+    // from growing unnoticed.
+    assert!(mean < 0.0 && mean > -0.8, "mean lag error {mean:.3} h");
     // A logistic from 0.05 OD (t_m = ln 29 / 0.7 = 4.81 h) grows from the
     // first reading: its λ is at the start, within the lag's own sd.
     let plain = Logistic::<f64>::from_initial(1.5, 0.7, 0.05).unwrap();

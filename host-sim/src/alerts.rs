@@ -246,6 +246,36 @@ pub fn run(runs: usize, seed: u64, lead_h: f64) -> AlertFigures {
     figures
 }
 
+/// The figures as a short text report.
+#[must_use]
+pub fn render(f: &AlertFigures) -> String {
+    #[allow(clippy::cast_precision_loss)]
+    let pct = |n: usize, of: usize| 100.0 * n as f64 / of.max(1) as f64;
+    format!(
+        "\nmonitor: {runs} INVENTED logistic cultures (0.8-3 OD, 0.3-1.5 per h, midpoint 5-12 h, 2 % bubbles), alert at 90 % of capacity, lead 1 h\n\
+         saturation alert before the true 90 % crossing: {before}/{runs} ({before_pct:.1} %); more than lead + 2 h early: {early}; missing: {missing}\n\
+         alert lead over the crossing: median {median:.2} h, min {min:.2} h, max {max:.2} h\n\
+         runs ending in exponential growth (10 % of capacity): {exp_runs}, saturation alerts on them: {false_alerts}\n\
+         forecast of the 90 % time made at the true inflection: median absolute error {fmed:.3} h, 95 % interval coverage {fcov:.1} %, no forecast in {fmiss} runs\n\
+         phase sequence lag -> exponential -> deceleration -> stationary, each once (clean streams): {phases}/{phase_runs}\n",
+        runs = f.runs,
+        before = f.alert_before_crossing,
+        before_pct = pct(f.alert_before_crossing, f.runs),
+        early = f.alert_too_early,
+        missing = f.alert_missing,
+        median = f.median_alert_lead_h,
+        min = f.min_alert_lead_h,
+        max = f.max_alert_lead_h,
+        exp_runs = f.exponential_runs,
+        false_alerts = f.false_alerts,
+        fmed = f.forecast_90_median_abs_error_h,
+        fcov = 100.0 * f.forecast_90_coverage,
+        fmiss = f.forecast_missing,
+        phases = f.phase_sequence_correct,
+        phase_runs = f.phase_runs,
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -182,13 +182,16 @@ fn main() -> Result<()> {
                 ..fleet::FleetOptions::new(runs, seed)
             };
             let report = fleet::run(&options)?;
+            let monitor = host_sim::alerts::run(runs, seed, 1.0);
             if json {
-                println!(
-                    "{}",
-                    serde_json::to_string_pretty(&fleet::to_json(&report))?
-                );
+                let mut value = fleet::to_json(&report);
+                if let Some(object) = value.as_object_mut() {
+                    object.insert("monitor".into(), serde_json::to_value(&monitor)?);
+                }
+                println!("{}", serde_json::to_string_pretty(&value)?);
             } else {
                 print!("{}", fleet::render(&report));
+                print!("{}", host_sim::alerts::render(&monitor));
             }
         }
         Command::Simulate {

@@ -120,15 +120,16 @@ pub struct Estimate<T = f32> {
     /// Inflection (midpoint) time `t_m`, hours on the caller's clock; `None`
     /// while the capacity is.
     pub inflection_time_h: Option<Measured<T>>,
-    /// Lag, hours: from the first reading (since the last restart) to the
-    /// time λ at which the exponential-phase line of the fitted curve on the
-    /// log scale, ln y = ln K − r (`t_m` − t), reaches the starting level y₀
-    /// (the median of the first three readings): λ = `t_m` − ln(K / y₀) / r.
-    /// This is the tangent construction on ln y used by Zwietering et al.
-    /// (1990) and by Baranyi & Roberts (1994); a culture that grows from its
-    /// first reading has a lag near zero. `None` while the capacity is, or
-    /// when the starting level is lost in the noise (its relative sd above
-    /// 0.5). Its sd includes the uncertainty of y₀.
+    /// Lag, hours: from the starting reading (the median of the first three
+    /// since the last restart, level y₀ at time t₀) to the time λ at which
+    /// the exponential-phase line of the fitted curve on the log scale,
+    /// ln y = ln K − r (`t_m` − t), reaches y₀: λ − t₀ with
+    /// λ = `t_m` − ln(K / y₀) / r. This is the tangent construction on ln y
+    /// used by Zwietering et al. (1990) and by Baranyi & Roberts (1994); a
+    /// culture that grows from its first reading has a lag near zero. `None`
+    /// while the capacity is, or when the starting level is not clear of the
+    /// noise (its relative sd above 0.2). Its sd includes the uncertainty of
+    /// y₀.
     #[doc(alias = "lambda")]
     pub lag_h: Option<Measured<T>>,
     /// The fitted signal (blank included) at the latest accepted reading.

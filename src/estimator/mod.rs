@@ -132,8 +132,12 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     /// The last three accepted values above blank (ring), for the gate
     /// before the first fit.
     recent: [T; 3],
-    /// Median of the first three accepted values above blank.
+    /// Median of the first three accepted values above blank, the time of
+    /// the reading that gave it (hours since origin), and the times of those
+    /// first readings.
     first_median: T,
+    first_median_time_h: T,
+    first_times_h: [T; 3],
     /// Running mean of squared standardised innovations, and how many.
     innovation_z2: T,
     innovations: u32,
@@ -164,6 +168,8 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             accepted: 0,
             recent: [T::ZERO; 3],
             first_median: T::ZERO,
+            first_median_time_h: T::ZERO,
+            first_times_h: [T::ZERO; 3],
             innovation_z2: T::ZERO,
             innovations: 0,
             since_refit: 0,
@@ -319,10 +325,19 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     fn accept(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) {
         self.history.push(t, y);
         self.latest_h = self.latest_h.max(t);
-        self.recent[usize::try_from(self.accepted % 3).unwrap_or(0)] = y;
+        let slot = usize::try_from(self.accepted % 3).unwrap_or(0);
+        self.recent[slot] = y;
+        if self.accepted < 3 {
+            self.first_times_h[slot] = t;
+        }
         self.accepted = self.accepted.saturating_add(1);
         if self.accepted == 3 {
             self.first_median = median3(self.recent);
+            // The time of the reading that gave the median.
+            let i = (0..3)
+                .find(|&i| !(self.recent[i] != self.first_median))
+                .unwrap_or(1);
+            self.first_median_time_h = self.first_times_h[i];
         }
         if y > T::ZERO {
             self.low = self.low.min(y);
@@ -564,12 +579,15 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         let sd_y0 = self.config.noise_sd(y0) * self.noise_scale2.sqrt();
         let var_ln_y0 = T::from_f64(core::f64::consts::FRAC_PI_2 / 3.0) * sd_y0 * sd_y0 / (y0 * y0);
-        if !(var_ln_y0 < T::from_f64(0.25)) {
+        if !(var_ln_y0 < T::from_f64(0.04)) {
             return None;
         }
         let r = theta[1].exp();
         let log_ratio = theta[0] - y0.ln();
-        let value = theta[2] - log_ratio / r;
+        // Counted from the starting reading: a culture that grows from its
+        // first readings has a lag of zero, not minus the minutes it took to
+        // take them.
+        let value = theta[2] - log_ratio / r - self.first_median_time_h;
         let g = [-T::ONE / r, log_ratio / r, T::ONE];
         let var = cov.quadratic(&g) + var_ln_y0 / (r * r);
         (value.is_finite() && var.is_finite()).then(|| Measured {
