@@ -52,13 +52,8 @@ impl<T: Real> Sym3<T> {
 
     /// gᵀ·A·g.
     pub(crate) fn quadratic(&self, g: &[T; 3]) -> T {
-        let mut q = T::ZERO;
-        for i in 0..3 {
-            for j in 0..3 {
-                q += g[i] * self.get(i, j) * g[j];
-            }
-        }
-        q
+        let ag = self.times(g);
+        g[0] * ag[0] + g[1] * ag[1] + g[2] * ag[2]
     }
 
     pub(crate) fn scaled(&self, s: T) -> Self {
@@ -76,12 +71,24 @@ impl<T: Real> Sym3<T> {
         out
     }
 
-    /// Finite and positive definite (an `LDLᵀ` factorisation exists).
+    /// Finite and positive definite, by Sylvester's criterion (all leading
+    /// principal minors positive); no square roots, no divisions.
     pub(crate) fn is_positive_definite(&self) -> bool {
-        self.is_finite()
-            && self
-                .jacobi()
-                .is_some_and(|d| self.jacobi_scaled(&d).ldl(T::ZERO).is_some())
+        let [a00, a01, a02, a11, a12, a22] = self.0;
+        let m2 = a00 * a11 - a01 * a01;
+        let det = a00 * (a11 * a22 - a12 * a12) - a01 * (a01 * a22 - a12 * a02)
+            + a02 * (a01 * a12 - a11 * a02);
+        self.is_finite() && a00 > T::ZERO && m2 > T::ZERO && det > T::ZERO
+    }
+
+    /// A·v.
+    pub(crate) fn times(&self, v: &[T; 3]) -> [T; 3] {
+        let a = &self.0;
+        [
+            a[0] * v[0] + a[1] * v[1] + a[2] * v[2],
+            a[1] * v[0] + a[3] * v[1] + a[4] * v[2],
+            a[2] * v[0] + a[4] * v[1] + a[5] * v[2],
+        ]
     }
 
     pub(crate) fn is_finite(&self) -> bool {
@@ -425,6 +432,8 @@ mod tests {
             assert!((s - b[i]).abs() < 1e-12);
         }
         // Not positive definite: refused, not a NaN.
-        assert!(Sym3([1.0_f64, 2.0, 0.0, 1.0, 0.0, 1.0]).inverse().is_none());
+        let indefinite = Sym3([1.0_f64, 2.0, 0.0, 1.0, 0.0, 1.0]);
+        assert!(indefinite.inverse().is_none());
+        assert!(!indefinite.is_positive_definite() && a.is_positive_definite());
     }
 }
