@@ -239,19 +239,61 @@ impl<T: Real> Curve<T> {
         (f, [f, self.k * q * x, -self.k * self.r * q], s)
     }
 
-    /// Value averaged over a slot whose reading times have variance
-    /// `spread_h2` around `time_h`: f(t̄) + ½ f''(t̄) var(t) (second-order
-    /// Taylor expansion), with f'' = r² f (1 − s)(1 − 2s) for the logistic.
-    /// Without it, merging readings along the convex early curve biases the
-    /// rate low. The gradient is that of f(t̄).
-    pub(crate) fn slot(&self, time_h: T, spread_h2: T) -> (T, [T; 3]) {
-        let (f, g, s) = self.eval(time_h);
-        if spread_h2 > T::ZERO {
-            let curvature = self.r * self.r * f * (T::ONE - s) * (T::ONE - T::TWO * s);
-            (f + T::HALF * curvature * spread_h2, g)
+    /// Value and gradient of the curve averaged over a slot spanning
+    /// [`first_h`, `last_h`] (hours since the origin), the average of evenly
+    /// spaced readings across it. With x = r (t − `t_m`) and the softplus
+    /// L(x) = ln(1 + eˣ), whose derivative is the sigmoid s(x):
+    /// `f̄ = K (L(xb) − L(xa)) / (xb − xa)`, and
+    /// `∂f̄/∂ln K = f̄`, `∂f̄/∂t_m = K r (sa − sb) / (xb − xa)`,
+    /// `∂f̄/∂ln r = K (sb xb − sa xa − (L(xb) − L(xa))) / (xb − xa)`.
+    /// Exact however wide the slot, so a slot that spans the approach to the
+    /// plateau and days of plateau is not read as a lower capacity. Slots
+    /// narrower than 1 in x use a second-order expansion about their mean
+    /// time instead (one `exp`, and no loss of precision to the difference
+    /// of two softplus values).
+    pub(crate) fn slot(&self, mean_h: T, first_h: T, last_h: T, count: u16) -> (T, [T; 3]) {
+        // c readings from `first_h` to `last_h` average like the curve over
+        // the span widened by half a spacing at each end (the midpoint rule
+        // for evenly spaced readings), centred on their mean time, so that
+        // two readings are not read as a continuum and a hole left by a
+        // rejected reading shifts the span the right way.
+        let width = if count > 1 {
+            (last_h - first_h) * T::from_u32(u32::from(count)) / T::from_u32(u32::from(count) - 1)
         } else {
-            (f, g)
+            T::ZERO
+        };
+        let xa = self.r * (mean_h - width * T::HALF - self.tm);
+        let xb = self.r * (mean_h + width * T::HALF - self.tm);
+        let width = xb - xa;
+        if !(width > T::ONE) {
+            // Narrow in x: the middle value plus half the curvature times the
+            // span's variance (width²/12), f'' = r² f (1 − s)(1 − 2s) — a
+            // second-order Taylor expansion, good to about 1e-4 of the value
+            // here, for one `exp`.
+            let (f, g, sig) = self.eval(mean_h);
+            let var_x = width * width / T::from_f64(12.0);
+            let curvature = f * (T::ONE - sig) * (T::ONE - T::TWO * sig);
+            return (f + T::HALF * curvature * var_x, g);
         }
+        let (la, sa) = softplus(xa);
+        let (lb, sb) = softplus(xb);
+        let d = lb - la;
+        let f = self.k * d / width;
+        let d_tm = self.k * self.r * (sa - sb) / width;
+        let d_ln_r = self.k * (sb * xb - sa * xa - d) / width;
+        (f, [f, d_ln_r, d_tm])
+    }
+}
+
+/// The softplus ln(1 + eˣ) and its derivative, the sigmoid, without overflow
+/// for any finite x.
+fn softplus<T: Real>(x: T) -> (T, T) {
+    if x > T::ZERO {
+        let e = (-x).exp();
+        (x + e.ln_1p(), T::ONE / (T::ONE + e))
+    } else {
+        let e = x.exp();
+        (e.ln_1p(), e / (T::ONE + e))
     }
 }
 
@@ -316,8 +358,9 @@ pub(crate) fn accumulate<T: Real, const N: usize>(
     let mut sse = T::ZERO;
     let n = history.len();
     for (i, weight) in weights.iter_mut().enumerate().take(n) {
-        let (t, y, c) = history.slot(i);
-        let (f, g) = curve.slot(t, history.spread_h2(i));
+        let (mean, y, c) = history.slot(i);
+        let (first, last) = history.span(i);
+        let (f, g) = curve.slot(mean, first, last, c);
         let sd = config.noise_sd(f);
         let mut w = T::from_u32(u32::from(c)) / (sd * sd);
         let e = y - f;
@@ -386,8 +429,9 @@ pub(crate) fn objective<T: Real, const N: usize>(
     let curve = Curve::new(theta);
     let mut sse = T::ZERO;
     for (i, &w) in weights.iter().enumerate().take(history.len()) {
-        let (t, y, _) = history.slot(i);
-        let e = y - curve.slot(t, history.spread_h2(i)).0;
+        let (mean, y, c) = history.slot(i);
+        let (first, last) = history.span(i);
+        let e = y - curve.slot(mean, first, last, c).0;
         sse += w * e * e;
     }
     let dk = prior.ln_k_mean - theta[0];

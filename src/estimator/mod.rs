@@ -9,9 +9,13 @@
 //! estimation for bioprocesses: Bastin & Dochain, *On-line Estimation and
 //! Adaptive Control of Bioreactors*, 1990 [memory]).
 //!
-//! 1. **History**: at most `N` slots (default 16) of (time, mean value, time spread,
-//!    count). When full, the adjacent pair with the smallest combined count is
-//!    merged. A slot's mean carries its noise variance divided by its count.
+//! 1. **History**: at most `N` slots (default 16) of (mean time, first and
+//!    last time, mean value, count). When full, a pair of adjacent slots on
+//!    the plateau (means within 2 % of the highest, agreeing within noise) is
+//!    merged if there is one, else the pair tightest in time. A slot's mean
+//!    carries its noise variance divided by its count, and the fit models it
+//!    as the curve averaged over its span, so a plateau of days collects in
+//!    one slot without washing out the growth phase or biasing the capacity.
 //! 2. **Refit**: the logistic y = K / (1 + e^(−r (t − `t_m`))) in
 //!    θ = (ln K, ln r, `t_m`), by Levenberg–Marquardt (Levenberg 1944,
 //!    Marquardt 1963) on the normal equations, weights count / sd², with
@@ -81,7 +85,7 @@ const INNOVATION_MEMORY: u32 = 64;
 const MIN_INNOVATIONS: u32 = 16;
 
 /// The online growth-curve estimator. `T` is the float type (`f32` on the
-/// device), `N` the number of history slots (8 to 255, default 16: with the curvature correction and tightest-pair merging, 16 slots matched the Cramér–Rao bound as well as 32 or 48 in our measurements, see the README).
+/// device), `N` the number of history slots (8 to 255, default 16: with slots modelled as span averages, 16 slots matched the Cramér–Rao bound as well as 32 or 48 in our measurements, see the README).
 ///
 /// Memory: fixed, `core::mem::size_of::<Estimator>()` bytes (see the README's
 /// footprint table); nothing is allocated.
@@ -326,7 +330,8 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// Takes a reading into the history and updates the fit. `model_at_t`
     /// is the fitted value and gradient at `t` when the caller has them.
     fn accept(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) {
-        self.history.push(t, y);
+        let config = self.config;
+        self.history.push(t, y, |v| config.noise_sd(v));
         self.latest_h = self.latest_h.max(t);
         let slot = usize::try_from(self.accepted % 3).unwrap_or(0);
         self.recent[slot] = y;
