@@ -73,6 +73,22 @@ impl<T: Real> Sym3<T> {
         self.0.iter().all(|a| a.is_finite())
     }
 
+    /// True when finite and safely positive definite: every pivot of the
+    /// `LDLᵀ` factorisation of the Jacobi-scaled (unit-diagonal) matrix is
+    /// above 64 ε. A pivot there is 1 − R², the share of a parameter's
+    /// variance the others do not explain; rounding the entries to `T` moves
+    /// it by a few ε, so a smaller pivot may be negative in exact arithmetic
+    /// (found by the property tests: an f32 covariance whose pivots were
+    /// positive in f32 was indefinite in f64).
+    pub(crate) fn is_positive_definite(&self) -> bool {
+        let margin = T::EPSILON * T::from_f64(64.0);
+        self.is_finite()
+            && self
+                .jacobi()
+                .and_then(|d| self.jacobi_scaled(&d).ldl(T::ZERO))
+                .is_some_and(|(_, pivots)| pivots.iter().all(|&p| p > margin))
+    }
+
     /// `LDLᵀ` factors of `self + damping·I`: unit lower-triangular L (row-major)
     /// and the diagonal D, or `None` when not positive definite. No square
     /// roots, so an approximate `sqrt` (the `fast-math` backend) cannot
@@ -210,7 +226,11 @@ pub(crate) fn slot_model<T: Real>(theta: &[T; 3], time_h: T, spread_h2: T) -> (T
 pub(crate) fn model<T: Real>(theta: &[T; 3], time_h: T) -> (T, [T; 3]) {
     let k = theta[0].exp();
     let r = theta[1].exp();
-    let x = r * (time_h - theta[2]);
+    // Beyond |x| = 100 the sigmoid is saturated to far below f64 precision
+    // (e^−100 ≈ 4e−44), so clamping changes no value; it keeps x finite for
+    // a time far from the midpoint (e.g. a reading at t = 3e38 h), where
+    // x·s(1 − s) was ∞·0 = NaN in the gradient.
+    let x = (r * (time_h - theta[2])).clamp_to(T::from_f64(-100.0), T::from_f64(100.0));
     let s = sigmoid(x);
     let q = s * (T::ONE - s);
     let f = k * s;

@@ -335,6 +335,14 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         self.damping = T::from_f64(1e-2);
         self.fitted = true;
         self.refit(16);
+        // No estimate without its uncertainty: if the information matrix
+        // could not be inverted (the readings cannot place the curve yet,
+        // for example when a huge first reading dwarfs the rest), the first
+        // fit did not take and the next reading tries again. Before this
+        // check an estimate was published with an all-zero covariance.
+        if !self.covariance.is_positive_definite() {
+            self.fitted = false;
+        }
     }
 
     fn refit(&mut self, iterations: u8) {
@@ -407,7 +415,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         if let Some(inverse) = normal.info.inverse() {
             let cov = inverse.scaled(self.noise_scale2);
-            if cov.is_finite() {
+            // Keep the last good covariance rather than store one that f32
+            // rounding left indefinite.
+            if cov.is_positive_definite() {
                 self.covariance = cov;
             }
         }
