@@ -191,7 +191,7 @@ mod regressions {
         run(&setup, &steps);
     }
 
-    /// A reading at t = f32::MAX hours: the model's gradient was ∞ · 0 = NaN
+    /// A reading at t = `f32::MAX` hours: the model's gradient was ∞ · 0 = NaN
     /// there, and the published fitted value had a NaN sd.
     #[test]
     fn reading_at_the_end_of_time_keeps_the_estimate_finite() {

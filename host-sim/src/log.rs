@@ -162,11 +162,13 @@ pub fn read_log<R: Read>(mut input: R, options: &LogOptions) -> Result<Log, LogE
     let text = bytes.strip_prefix(b"\xef\xbb\xbf").unwrap_or(&bytes);
     // The csv crate's own line counter drifts with CRLF and blank lines, so
     // line numbers come from byte offsets: the line of the first byte of a
-    // record that is not a line break.
+    // record that is not a line break. A line ends at "\n", "\r\n" or a lone
+    // "\r", as the csv parser ends records (counting only "\n" numbered every
+    // row of a file with lone-CR line ends "line 1"; found by fuzzing).
     let newlines: Vec<usize> = text
         .iter()
         .enumerate()
-        .filter(|(_, b)| **b == b'\n')
+        .filter(|&(i, b)| *b == b'\n' || (*b == b'\r' && text.get(i + 1) != Some(&b'\n')))
         .map(|(i, _)| i)
         .collect();
     let line_of = |pos: Option<&csv::Position>| -> u64 {
@@ -442,6 +444,18 @@ mod tests {
             panic!()
         };
         assert_eq!(rows[0].line, 4);
+    }
+
+    #[test]
+    fn lone_cr_line_ends_number_lines_truly() {
+        // Old-style CR-only line ends: rows are lines 2 and 3, the bad one 3.
+        let log = read("time_h,od\r0,0.1\r1,0.2\r").unwrap();
+        let lines: Vec<u64> = log.rows.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [2, 3]);
+        let LogError::BadRows(rows) = read("time_h,od\r0,0.1\r1,x\r").unwrap_err() else {
+            panic!()
+        };
+        assert_eq!(rows[0].line, 3);
     }
 
     #[test]

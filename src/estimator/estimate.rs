@@ -198,7 +198,7 @@ impl<T: Real> Estimate<T> {
         let (f, g) = model(&self.theta, time_h - self.origin_h);
         Measured {
             value: f + self.blank,
-            sd: self.covariance.quadratic(&g).max(T::ZERO).sqrt(),
+            sd: self.covariance.sd_along(&g),
         }
     }
 
@@ -220,7 +220,7 @@ impl<T: Real> Estimate<T> {
         let dt = (l / (k - l)).ln() / r;
         let g = [-k / (r * (k - l)), -dt, T::ONE];
         let value = self.theta[2] + dt + self.origin_h;
-        let sd = self.covariance.quadratic(&g).max(T::ZERO).sqrt();
+        let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
     }
 
@@ -237,7 +237,7 @@ impl<T: Real> Estimate<T> {
         let dt = (fraction / (T::ONE - fraction)).ln() / r;
         let g = [T::ZERO, -dt, T::ONE];
         let value = self.theta[2] + dt + self.origin_h;
-        let sd = self.covariance.quadratic(&g).max(T::ZERO).sqrt();
+        let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
     }
 }

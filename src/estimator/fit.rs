@@ -50,15 +50,41 @@ impl<T: Real> Sym3<T> {
         a[5] += w * g[2] * g[2];
     }
 
-    /// gᵀ·A·g.
+    /// gᵀ·A·g, never below zero. Computed on g / max|gᵢ| and scaled back,
+    /// so a huge g (a fit to absurdly large readings) gives +∞ rather than
+    /// ∞ − ∞ = NaN.
     pub(crate) fn quadratic(&self, g: &[T; 3]) -> T {
+        let (scale, q) = self.scaled_quadratic(g);
+        scale * scale * q
+    }
+
+    /// The standard deviation along g, √(gᵀ·A·g), finite whenever the
+    /// result is: the square root is taken before scaling back, so a huge g
+    /// does not overflow the intermediate square (the fuzzer found a fitted
+    /// value of 1.3e19 OD whose sd came out NaN).
+    pub(crate) fn sd_along(&self, g: &[T; 3]) -> T {
+        let (scale, q) = self.scaled_quadratic(g);
+        scale * q.sqrt()
+    }
+
+    /// (s, q) with s = max|gᵢ| and q = (g/s)ᵀ·A·(g/s) clamped at 0.
+    fn scaled_quadratic(&self, g: &[T; 3]) -> (T, T) {
+        let scale = g[0].abs().max(g[1].abs()).max(g[2].abs());
+        if scale.is_nan() || !scale.is_finite() {
+            // Unknown direction: an infinite spread, which callers filter.
+            return (T::INFINITY, T::ONE);
+        }
+        if !(scale > T::ZERO) {
+            return (T::ZERO, T::ZERO);
+        }
+        let u = [g[0] / scale, g[1] / scale, g[2] / scale];
         let mut q = T::ZERO;
         for i in 0..3 {
             for j in 0..3 {
-                q += g[i] * self.get(i, j) * g[j];
+                q += u[i] * self.get(i, j) * u[j];
             }
         }
-        q
+        (scale, q.max(T::ZERO))
     }
 
     pub(crate) fn scaled(&self, s: T) -> Self {

@@ -451,10 +451,10 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         };
         // lag = `t_m` − 2/r: ∂/∂`t_m` = 1, ∂/∂ln r = 2/r.
         let two_over_r = T::TWO / r;
-        let lag_var = cov.quadratic(&[T::ZERO, two_over_r, T::ONE]);
+        let lag_sd = cov.sd_along(&[T::ZERO, two_over_r, T::ONE]);
         let lag = Measured {
             value: inflection.value - two_over_r,
-            sd: lag_var.max(T::ZERO).sqrt(),
+            sd: lag_sd,
         };
         let (f, g) = model(&theta, self.latest_h);
         Some(Estimate {
@@ -471,7 +471,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             lag_end_h: published.then_some(lag),
             fitted_value: Measured {
                 value: f + self.config.blank,
-                sd: cov.quadratic(&g).max(T::ZERO).sqrt(),
+                sd: cov.sd_along(&g),
             },
             latest_time_h: self.latest_h + self.origin_h,
             noise_scale: self.noise_scale2.sqrt(),

@@ -61,7 +61,7 @@ pub struct Setup {
     pub dilution_ratio: f32,
     pub min_growth_ratio: f32,
     pub max_rate_per_h: f32,
-    /// Targets as (is_fraction, level or fraction).
+    /// Targets as (`is_fraction`, level or fraction).
     pub targets: [(bool, f32); 3],
     /// Invented culture: capacity (OD), rate (per hour), midpoint (hours).
     pub capacity_od: f32,
@@ -192,11 +192,11 @@ fn run_sized<const N: usize, const TARGETS: usize, const EVENTS: usize>(
     let photometer = photometer();
     let mut clock_h = 0.0_f32;
     let mut summary = Summary::default();
-    let mut feed = |watch: &mut Watch<f32, N, TARGETS, EVENTS>,
-                    time_h: f32,
-                    value: f32,
-                    counts: bool,
-                    summary: &mut Summary| {
+    let feed = |watch: &mut Watch<f32, N, TARGETS, EVENTS>,
+                time_h: f32,
+                value: f32,
+                counts: bool,
+                summary: &mut Summary| {
         let od = if counts {
             match photometer.convert(value) {
                 Reading::Od(v) => v.od,
