@@ -232,6 +232,18 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             return Outcome::Rejected(Rejection::Spike);
         }
         let run = usize::from(self.held_len);
+        if !self.held_consistent(run) {
+            // Readings that disagree with each other are not a level the
+            // culture moved to but a faulty sensor: drop the oldest and keep
+            // holding. Without this a burst of garbage (random and huge
+            // values between NaNs) entered the history four at a time and
+            // spoilt the fit for the rest of the culture (found by the
+            // recovery test, tests/recovery.rs).
+            self.held_time_h.copy_within(1..run, 0);
+            self.held_value.copy_within(1..run, 0);
+            self.held_len = u8::try_from(run - 1).unwrap_or(0);
+            return Outcome::Rejected(Rejection::Spike);
+        }
         self.held_len = 0;
         // A dilution drops the signal below both the prediction and the last
         // accepted readings; a long gap or a slow decline does neither.
@@ -257,6 +269,30 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         self.damping = T::from_f64(1e-3);
         Outcome::Accepted
+    }
+
+    /// True when the first `run` held readings agree with each other: every
+    /// one within `gate_sigma` noise sds of their median, after allowing
+    /// growth or decay at up to `max_rate_per_h` over the run's time span.
+    /// A real shift of level (a dilution, faster growth than the model
+    /// expected) passes; a run of random values does not.
+    fn held_consistent(&self, run: usize) -> bool {
+        let mut sorted = self.held_value;
+        let values = &mut sorted[..run];
+        for i in 1..run {
+            let mut j = i;
+            while j > 0 && values[j - 1] > values[j] {
+                values.swap(j - 1, j);
+                j -= 1;
+            }
+        }
+        let median = values[run / 2];
+        let span_h = self.held_time_h[run - 1] - self.held_time_h[0];
+        let growth = (self.config.max_rate_per_h * span_h.max(T::ZERO)).exp();
+        let band = self.config.gate_sigma * self.config.noise_sd(median);
+        values
+            .iter()
+            .all(|&v| v >= median / growth - band && v <= median * growth + band)
     }
 
     fn accept(&mut self, t: T, y: T) {
