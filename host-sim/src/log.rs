@@ -4,7 +4,9 @@
 //! name (time in hours and the sensor value); other columns are ignored. A row
 //! that cannot be parsed is an error naming its line (1-based; the header is
 //! line 1), unless [`LogOptions::skip_bad_rows`] is set, in which case it is
-//! skipped and reported. Values that parse but make no physical sense (NaN,
+//! skipped and reported. A row with more fields than the header is such a
+//! row (a comma used as the decimal separator would otherwise shift the
+//! columns silently). Values that parse but make no physical sense (NaN,
 //! infinity, negative, time running backwards) are kept: judging them is the
 //! estimator's job.
 //!
@@ -210,6 +212,20 @@ pub fn read_log<R: Read>(mut input: R, options: &LogOptions) -> Result<Log, LogE
         let record = record.map_err(csv_error)?;
         let line = line_of(record.position());
         if record.iter().all(|f| f.trim().is_empty()) {
+            continue;
+        }
+        // More fields than the header names is ambiguous, and typically a
+        // comma used as the decimal separator ("0,123" read as two fields):
+        // picking columns by position would take a wrong number silently.
+        if record.len() > names.len() {
+            bad.push(BadRow {
+                line,
+                reason: format!(
+                    "the row has {} fields but the header has {} (a comma used as decimal separator?)",
+                    record.len(),
+                    names.len()
+                ),
+            });
             continue;
         }
         let field = |idx: usize, name: &str| -> Result<f64, String> {
