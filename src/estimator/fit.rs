@@ -221,6 +221,13 @@ fn ldl_solve<T: Real>((l, d): &([[T; 3]; 3], [T; 3]), b: &[T; 3]) -> [T; 3] {
     x
 }
 
+/// A standard deviation too large for `T` (a fit to absurd readings, with
+/// capacity up to e⁸⁰) reported as `T::MAX`: finite, and plainly "unknown",
+/// where the product `K · sd(ln K)` overflowed to +∞ (found by fuzzing).
+pub(crate) fn saturate<T: Real>(sd: T) -> T {
+    sd.min(T::MAX)
+}
+
 /// The logistic sigmoid 1/(1 + e^(−x)), without overflow for any finite x.
 pub(crate) fn sigmoid<T: Real>(x: T) -> T {
     if x >= T::ZERO {

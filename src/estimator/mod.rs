@@ -54,7 +54,7 @@ pub use config::EstimatorConfig;
 pub use estimate::{Estimate, Measured, Outcome, Rejection};
 
 use config::MAX_HELD;
-use fit::{Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective};
+use fit::{Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, saturate};
 use history::History;
 
 use crate::Real;
@@ -473,7 +473,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let sd_ln_r = cov.get(1, 1).max(T::ZERO).sqrt();
         let capacity = Measured {
             value: k,
-            sd: k * sd_ln_k,
+            sd: saturate(k * sd_ln_k),
         };
         // Published only when precise enough and when the rise from the
         // starting level to it stands out of the noise (ten noise sds): a
@@ -490,24 +490,24 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let lag_sd = cov.sd_along(&[T::ZERO, two_over_r, T::ONE]);
         let lag = Measured {
             value: inflection.value - two_over_r,
-            sd: lag_sd,
+            sd: saturate(lag_sd),
         };
         let (f, g) = model(&theta, self.latest_h);
         Some(Estimate {
             capacity: published.then_some(capacity),
             rate_per_h: Measured {
                 value: r,
-                sd: r * sd_ln_r,
+                sd: saturate(r * sd_ln_r),
             },
             doubling_time_h: Measured {
                 value: T::LN_2 / r,
-                sd: T::LN_2 / r * sd_ln_r,
+                sd: saturate(T::LN_2 / r * sd_ln_r),
             },
             inflection_time_h: published.then_some(inflection),
             lag_end_h: published.then_some(lag),
             fitted_value: Measured {
                 value: f + self.config.blank,
-                sd: cov.sd_along(&g),
+                sd: saturate(cov.sd_along(&g)),
             },
             latest_time_h: self.latest_h + self.origin_h,
             noise_scale: self.noise_scale2.sqrt(),
