@@ -242,3 +242,39 @@ mod regressions {
         run(&setup, &steps);
     }
 }
+
+/// One reading stamped far in the future (a corrupt clock value) used to
+/// lock the estimator out for good: every later reading was "time
+/// backwards". Now `max_consecutive_rejections` (default 4) readings behind
+/// it restart the estimator, which then fits the invented culture.
+#[test]
+fn a_corrupt_future_timestamp_does_not_lock_the_estimator_out() {
+    use plateau::{Estimator, EstimatorConfig, Outcome, Rejection};
+    let setup = Setup::default();
+    let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
+    for i in 0..5 {
+        let t = i as f32 * hardening::INTERVAL_H;
+        estimator.update(t, setup.truth_od(t));
+    }
+    assert_eq!(
+        estimator.update(1.0e30, setup.truth_od(0.5)),
+        Outcome::Accepted
+    );
+    let mut outcomes = Vec::new();
+    for i in 6..=200 {
+        let t = i as f32 * hardening::INTERVAL_H;
+        outcomes.push(estimator.update(t, setup.truth_od(t)));
+    }
+    let backwards = Outcome::Rejected(Rejection::TimeBackwards);
+    assert_eq!(
+        outcomes[..4],
+        [backwards, backwards, backwards, Outcome::Restarted]
+    );
+    assert!(!outcomes[4..].contains(&backwards));
+    let k = estimator
+        .estimate()
+        .and_then(|e| e.capacity)
+        .expect("a capacity");
+    // The invented culture's capacity is 1.5 OD.
+    assert!((k.value - 1.5).abs() < 0.05, "{k:?}");
+}

@@ -112,6 +112,8 @@ pub struct Estimator<T: Real = f32, const N: usize = 32> {
     held_len: u8,
     held_sign: i8,
     accepted: u32,
+    /// Readings in a row whose time was behind the latest accepted one.
+    behind: u8,
     /// The last three accepted values above blank (ring), for the gate
     /// before the first fit.
     recent: [T; 3],
@@ -140,6 +142,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             held_len: 0,
             held_sign: 0,
             accepted: 0,
+            behind: 0,
             recent: [T::ZERO; 3],
             first_median: T::ZERO,
         }
@@ -159,6 +162,11 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// Feeds one reading: `time_h` in hours on any clock that does not run
     /// backwards, `value` in signal units (OD units for a photometer).
     ///
+    /// A reading earlier than the latest accepted one is rejected
+    /// ([`Rejection::TimeBackwards`]); after `max_consecutive_rejections` of
+    /// them in a row the clock is taken as reset and the estimator restarts
+    /// from the last one ([`Outcome::Restarted`]).
+    ///
     /// Never panics, never allocates, takes bounded time, and leaves no NaN in
     /// the state whatever the input.
     pub fn update(&mut self, time_h: T, value: T) -> Outcome {
@@ -176,8 +184,21 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         let t = time_h - self.origin_h;
         if t < self.latest_h || !t.is_finite() {
-            return Outcome::Rejected(Rejection::TimeBackwards);
+            // A clock that stays behind the latest accepted reading for
+            // `max_consecutive_rejections` readings in a row was reset, or
+            // that latest time was corrupt (one reading stamped 1e30 h locked
+            // the estimator out for good, found by the hardening tests):
+            // restart from this reading, as after a dilution.
+            self.behind = self.behind.saturating_add(1);
+            if self.behind < self.config.max_consecutive_rejections {
+                return Outcome::Rejected(Rejection::TimeBackwards);
+            }
+            *self = Self::new(self.config);
+            self.origin_h = time_h;
+            self.accept(T::ZERO, value - self.config.blank);
+            return Outcome::Restarted;
         }
+        self.behind = 0;
         let y = value - self.config.blank;
 
         if let Some((predicted, var)) = self.prediction(t) {
