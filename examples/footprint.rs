@@ -8,10 +8,14 @@
 
 use core::mem::size_of;
 
-use plateau::{Linearity, OpticalDensity, Photometer, PhotometerConfig, Reading, SamplerConfig};
+use plateau::{
+    Estimate, Estimator, EstimatorConfig, Linearity, OpticalDensity, Outcome, Photometer,
+    PhotometerConfig, Reading, SamplerConfig,
+};
 
-/// One line per type the device keeps. Add the estimator and monitor here
-/// when they land, in the same `name_bytes` form.
+/// One line per type the device keeps. Add the monitor here when it lands, in
+/// the same `name_bytes` form. The estimator holds no `usize`, so its sizes
+/// are the Cortex-M4's too.
 fn footprint() -> Vec<(&'static str, usize)> {
     vec![
         (
@@ -27,7 +31,20 @@ fn footprint() -> Vec<(&'static str, usize)> {
         ("optical_density_bytes", size_of::<OpticalDensity<f32>>()),
         ("reading_bytes", size_of::<Reading<f32>>()),
         ("sampler_config_bytes", size_of::<SamplerConfig>()),
-        // ("estimator_bytes", size_of::<plateau::Estimator<f32>>()),
+        // The running state, for the default 32 history slots and for 16 and 24.
+        ("estimator_state_bytes", size_of::<Estimator<f32>>()),
+        (
+            "estimator_state_16_slots_bytes",
+            size_of::<Estimator<f32, 16>>(),
+        ),
+        (
+            "estimator_state_24_slots_bytes",
+            size_of::<Estimator<f32, 24>>(),
+        ),
+        // Included in the state above; listed for a config kept apart.
+        ("estimator_config_bytes", size_of::<EstimatorConfig<f32>>()),
+        ("estimate_bytes", size_of::<Estimate<f32>>()),
+        ("outcome_bytes", size_of::<Outcome>()),
         // ("monitor_bytes", size_of::<plateau::Monitor<f32>>()),
     ]
 }

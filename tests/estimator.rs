@@ -28,7 +28,7 @@ fn tally(stream: &Stream, truth: &Logistic<f64>, config: EstimatorConfig<f32>) -
     };
     for seed in 0..SEEDS {
         let readings = stream.generate(truth, seed);
-        let est = run_f32::<32>(config, &readings)
+        let est = run_f32::<16>(config, &readings)
             .estimate()
             .expect("an estimate");
         let k = est.capacity.expect("a capacity at the end of the run");
@@ -65,13 +65,9 @@ fn reaches_the_cramer_rao_bound_on_clean_cultures() {
     let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
     let (rk, rr) = (rmse(t.sq_k, t.runs) / crb[0], rmse(t.sq_r, t.runs) / crb[1]);
     eprintln!("capacity RMSE / CRB = {rk:.3}, rate RMSE / CRB = {rr:.3}");
-    // With `fast-math` the approximate exp perturbs the refit (measured
-    // capacity RMSE / CRB 1.76 on these 40 cultures, against 1.19 with libm).
-    let bound = if cfg!(feature = "fast-math") {
-        2.0
-    } else {
-        1.35
-    };
+    // Same bound for both math backends: measured 1.22 (capacity) and 0.96
+    // (rate) on these 40 cultures with libm and with fast-math.
+    let bound = 1.35;
     assert!(rk < bound, "capacity RMSE / CRB = {rk:.3}");
     assert!(rr < bound, "rate RMSE / CRB = {rr:.3}");
     // 95 % intervals: expect 38 of 40; allow sampling spread (binomial sd 1.4).
@@ -150,18 +146,13 @@ fn gaps_and_jitter_keep_it_on_track() {
 }
 
 #[test]
-fn lag_and_inflection_match_the_closed_form() {
+fn inflection_and_forecast_match_the_closed_form() {
     let truth = reference_culture();
-    // Tangent lag of the logistic: t_m − 2/r (the tangent at the inflection,
-    // slope rK/4, through (t_m, K/2); FACTS.md logistic identities).
-    let lag = truth.midpoint_h() - 2.0 / truth.rate_per_h();
     let readings = Stream::default().generate(&truth, 7);
-    let est = run_f32::<32>(EstimatorConfig::new(), &readings)
+    let est = run_f32::<16>(EstimatorConfig::new(), &readings)
         .estimate()
         .unwrap();
-    let l = est.lag_end_h.unwrap();
     let m = est.inflection_time_h.unwrap();
-    assert!((f64::from(l.value) - lag).abs() < 3.0 * f64::from(l.sd).max(0.01));
     assert!((f64::from(m.value) - 8.0).abs() < 3.0 * f64::from(m.sd).max(0.01));
     assert!((f64::from(est.doubling_time_h.value) - core::f64::consts::LN_2 / 0.7).abs() < 0.02);
     // Time to 90 % of capacity: t_m + ln 9 / r (FACTS.md).
@@ -170,6 +161,60 @@ fn lag_and_inflection_match_the_closed_form() {
         (f64::from(t90.value) - (8.0 + 9.0_f64.ln() / 0.7)).abs()
             < 3.0 * f64::from(t90.sd).max(0.01)
     );
+    // This culture starts at 0.0055 OD, under the 0.003 OD noise floor's
+    // reach: its starting level, and so its lag, cannot be told.
+    assert!(est.lag_h.is_none());
+}
+
+/// Lag by the tangent construction on ln y against the Baranyi–Roberts model,
+/// whose λ is defined that way (Baranyi & Roberts 1994, h0 = μmax λ; FACTS.md),
+/// and against a logistic with no lag at all.
+#[test]
+fn lag_matches_the_baranyi_lambda_and_is_zero_without_one() {
+    use plateau::{Baranyi, Population};
+    // Invented: 0.02 OD inoculum, 1.5 OD capacity, 0.7 per hour, 3 h lag.
+    let baranyi = Population::new(
+        Baranyi::<f64>::new((1.5_f64 / 0.02).ln(), 0.7, 3.0).unwrap(),
+        0.02,
+    )
+    .unwrap();
+    // A quiet photometer (0.001 OD floor), so the 0.02 OD start is clear.
+    let stream = Stream {
+        end_h: 24.0,
+        floor: 0.001,
+        ..Stream::default()
+    };
+    let mut errors = Vec::new();
+    for seed in 0..20 {
+        let config = EstimatorConfig::new().noise(0.001, 0.01).unwrap();
+        let est = run_f32::<16>(config, &stream.generate(&baranyi, seed));
+        let lag = est
+            .estimate()
+            .unwrap()
+            .lag_h
+            .expect("starting level is clear of the noise");
+        errors.push(f64::from(lag.value) - 3.0);
+    }
+    let mean = errors.iter().sum::<f64>() / 20.0;
+    eprintln!("Baranyi lag: mean error {mean:.3} h");
+    // The logistic fitted to a Baranyi curve reads the lag short: its
+    // exponential-phase line is shallower than μmax and the curve's rounded
+    // end of lag pulls it earlier. Measured mean error −0.64 h with libm,
+    // −0.65 h with fast-math (a fifth of the 3 h lag). A known limit of the
+    // one-family online model, stated in the README; the bound keeps it
+    // from growing unnoticed.
+    assert!(mean < 0.0 && mean > -0.8, "mean lag error {mean:.3} h");
+    // A logistic from 0.05 OD (t_m = ln 29 / 0.7 = 4.81 h) grows from the
+    // first reading: its λ is at the start, within the lag's own sd.
+    let plain = Logistic::<f64>::from_initial(1.5, 0.7, 0.05).unwrap();
+    for seed in 0..10 {
+        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&plain, seed));
+        let lag = est.estimate().unwrap().lag_h.unwrap();
+        assert!(
+            f64::from(lag.value).abs() < 3.0 * f64::from(lag.sd) + 0.1,
+            "seed {seed}: {lag:?}"
+        );
+    }
 }
 
 #[test]
@@ -181,7 +226,7 @@ fn no_capacity_is_invented_during_exponential_growth() {
         ..Stream::default()
     };
     for seed in 0..10 {
-        let est = run_f32::<32>(EstimatorConfig::new(), &stream.generate(&truth, seed));
+        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&truth, seed));
         let e = est
             .estimate()
             .expect("growth is visible, so a rate is known");
@@ -213,7 +258,7 @@ fn a_blank_offset_is_removed() {
 fn any_unit_and_scale_gives_the_same_relative_answer() {
     let truth = reference_culture();
     let readings = Stream::default().generate(&truth, 3);
-    let base = run_f32::<32>(EstimatorConfig::new(), &readings)
+    let base = run_f32::<16>(EstimatorConfig::new(), &readings)
         .estimate()
         .unwrap();
     // Cells (capacity 10⁴) and a dimensionless fraction (capacity 1): scale the
@@ -230,7 +275,7 @@ fn any_unit_and_scale_gives_the_same_relative_answer() {
         let config = EstimatorConfig::new()
             .noise(0.003 * scale as f32, 0.01)
             .unwrap();
-        let e = run_f32::<32>(config, &scaled).estimate().unwrap();
+        let e = run_f32::<16>(config, &scaled).estimate().unwrap();
         let (k0, k1) = (base.capacity.unwrap(), e.capacity.unwrap());
         let rel = f64::from(k1.value) / (f64::from(k0.value) * scale) - 1.0;
         assert!(rel.abs() < 1e-3, "scale {scale}: capacity off by {rel:e}");
@@ -244,7 +289,7 @@ fn bad_readings_are_rejected_with_a_reason_and_change_nothing() {
     let truth = reference_culture();
     let readings = Stream::default().generate(&truth, 11);
     let config = EstimatorConfig::new().ceiling(3.5).unwrap();
-    let mut est = run_f32::<32>(config, &readings[..150]);
+    let mut est = run_f32::<16>(config, &readings[..150]);
     let before = est.estimate().unwrap();
     let last = readings[149].time_h as f32;
     let bad = [
@@ -252,7 +297,7 @@ fn bad_readings_are_rejected_with_a_reason_and_change_nothing() {
         (last + 0.1, f32::NAN, Rejection::NotFinite),
         (f32::INFINITY, 0.5, Rejection::NotFinite),
         (last + 0.1, f32::NEG_INFINITY, Rejection::NotFinite),
-        (last + 0.1, -0.01, Rejection::Negative),
+        (last + 0.1, -0.05, Rejection::Negative),
         (last + 0.1, 3.5, Rejection::AtCeiling),
         (last + 0.1, 9.0, Rejection::AtCeiling),
         (last - 1.0, 0.5, Rejection::TimeBackwards),
@@ -337,7 +382,7 @@ fn f32_on_the_device_agrees_with_f64_on_the_host() {
     let truth = reference_culture();
     for seed in 0..5 {
         let readings = Stream::default().generate(&truth, seed);
-        let a = run_f32::<32>(EstimatorConfig::new(), &readings)
+        let a = run_f32::<16>(EstimatorConfig::new(), &readings)
             .estimate()
             .unwrap();
         let mut b = Estimator::<f64>::new(EstimatorConfig::new());
@@ -369,12 +414,47 @@ fn f32_on_the_device_agrees_with_f64_on_the_host() {
 }
 
 #[test]
-fn sixteen_slots_still_track_the_culture() {
+fn other_history_sizes_track_the_culture_too() {
     let truth = reference_culture();
     let readings = Stream::default().generate(&truth, 2);
-    let e = run_f32::<16>(EstimatorConfig::new(), &readings)
+    let e = run_f32::<32>(EstimatorConfig::new(), &readings)
         .estimate()
         .unwrap();
     let k = e.capacity.unwrap();
     assert!((f64::from(k.value) - 1.5).abs() < 4.0 * f64::from(k.sd) + 0.005);
+    let e = run_f32::<12>(EstimatorConfig::new(), &readings)
+        .estimate()
+        .unwrap();
+    let k = e.capacity.unwrap();
+    assert!((f64::from(k.value) - 1.5).abs() < 4.0 * f64::from(k.sd) + 0.005);
+}
+
+/// A culture that is not a logistic: Zwietering's Gompertz form on ln(N/N0)
+/// (Zwietering et al. 1990; FACTS.md) mapped to OD. The logistic fit cannot
+/// match its asymmetry; the published interval must say so.
+#[test]
+fn intervals_widen_when_the_culture_is_not_a_logistic() {
+    use plateau::{Gompertz, Population};
+    // Invented: 0.02 OD inoculum, 1.5 OD capacity, 0.7 per hour, 3 h lag.
+    let truth = Population::new(
+        Gompertz::<f64>::new((1.5_f64 / 0.02).ln(), 0.7, 3.0).unwrap(),
+        0.02,
+    )
+    .unwrap();
+    let stream = Stream {
+        end_h: 30.0,
+        ..Stream::default()
+    };
+    let mut covered = 0;
+    for seed in 0..20 {
+        let est = run_f32::<16>(EstimatorConfig::new(), &stream.generate(&truth, seed));
+        let k = est.estimate().unwrap().capacity.unwrap();
+        // Still close: the misfit costs under 1.5 % of capacity.
+        assert!(
+            (f64::from(k.value) - 1.5).abs() < 0.02,
+            "seed {seed}: {k:?}"
+        );
+        covered += u32::from((f64::from(k.value) - 1.5).abs() <= 1.96 * f64::from(k.sd));
+    }
+    assert!(covered >= 17, "covered {covered}/20");
 }

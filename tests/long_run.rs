@@ -43,6 +43,13 @@ const INTERVAL_H: f64 = 5.0 / 60.0;
 /// prior, the four readings held after each dilution, the fit's start), and
 /// its tails are wider than its sds say (6.7 sd in 64 000 draws, where a
 /// normal gives about 4.4).
+///
+/// After merging main (EKF steps between refits) the run takes 2.4 s and
+/// FAILS this bound once: reading 409 014 reports capacity 1.382 ± 0.014
+/// (a 1.0 % sd, a third of the Cramér–Rao 3.3 % for one cycle's readings:
+/// overconfident), 8.2 of its own sds from the truth; worst rate miss 7.3
+/// sds. Left failing on purpose for the estimator's owner: the tolerance
+/// was stated before that code was measured.
 const CAPACITY_REL_TOL: f64 = 0.30;
 const RATE_REL_TOL: f64 = 0.30;
 const Z_TOL: f64 = 8.0;
@@ -157,7 +164,7 @@ fn twenty_turbidostat_cycles_reconverge_every_time() {
 }
 
 #[test]
-#[ignore = "10^6 readings: about 7 s in release, run by hand"]
+#[ignore = "10^6 readings: a few seconds in release, run by hand"]
 fn a_million_readings_over_turbidostat_cycles() {
     let start = std::time::Instant::now();
     let stats = run_cycles(u64::MAX, 1_000_000, 7);

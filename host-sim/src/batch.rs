@@ -400,10 +400,35 @@ pub fn fisher(
     if !(noise_sd.is_finite() && noise_sd > 0.0) {
         return Err(FitError::BadNoise);
     }
+    let sds = vec![noise_sd; times.len()];
+    fisher_heteroscedastic(capacity, rate_per_h, midpoint_h, times, &sds)
+}
+
+/// As [`fisher`], with its own noise sd for every time (noise that grows with
+/// the signal): the Fisher information is Σ gᵢ gᵢᵀ / σᵢ².
+///
+/// # Errors
+///
+/// [`FitError::LengthMismatch`] if `noise_sd` and `times` differ in length,
+/// [`FitError::BadNoise`] for a non-positive sd, [`FitError::Singular`] when
+/// the grid cannot pin down the three parameters.
+pub fn fisher_heteroscedastic(
+    capacity: f64,
+    rate_per_h: f64,
+    midpoint_h: f64,
+    times: &[f64],
+    noise_sd: &[f64],
+) -> Result<[f64; 3], FitError> {
+    if noise_sd.len() != times.len() {
+        return Err(FitError::LengthMismatch);
+    }
+    if noise_sd.iter().any(|s| !(s.is_finite() && *s > 0.0)) {
+        return Err(FitError::BadNoise);
+    }
     let mut info = Matrix3::<f64>::zeros();
-    for &t in times {
+    for (&t, &sd) in times.iter().zip(noise_sd) {
         let g = Vector3::from(gradient(capacity, rate_per_h, midpoint_h, t));
-        info += g * g.transpose() / (noise_sd * noise_sd);
+        info += g * g.transpose() / (sd * sd);
     }
     let inv = info.try_inverse().ok_or(FitError::Singular)?;
     if (0..3).any(|i| inv[(i, i)].is_nan() || inv[(i, i)] <= 0.0) {

@@ -4,8 +4,9 @@
 //! The culture is invented (see `scenarios/demo.toml`): logistic growth to
 //! 1.5 OD at 0.7 per hour with its midpoint at 8 h, read every 5 minutes for
 //! 20 h with noise 0.003 OD + 1 % and a few bubbles. The summary is a table of
-//! quantities against sources — the closed-form truth and the batch fit so
-//! far; another source (the online estimate) is one more [`Column`].
+//! quantities against sources — the closed-form truth, the batch fit and the
+//! online estimate the device's `f32` estimator holds after the last reading
+//! — followed by the culture monitor's phases and saturation alert.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -13,7 +14,10 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result};
 use plateau::GrowthCurve;
 
+use plateau::{Estimate, Event, Measured, Outcome};
+
 use crate::batch::{LogisticFit, fit_logistic, fit_logistic_trimmed};
+use crate::online::{self, Settings, Step};
 use crate::plot::{BandCurve, Marker, Phase, PlotData, PlotPoint};
 use crate::scenario::{Kind, Reading, Scenario, generate};
 
@@ -49,25 +53,31 @@ pub struct CurveSummary {
     pub rate_per_h: Value,
     /// Doubling time ln 2 / rate, hours.
     pub doubling_time_h: Value,
-    /// Lag by the tangent construction, hours.
+    /// Lag by the tangent construction on ln OD, hours from the first
+    /// reading: where the exponential-phase line through the inflection,
+    /// ln y = ln K − r (`t_m` − t), meets the starting level (the estimator's
+    /// definition; exact for the logistic).
     pub lag_h: Value,
     /// Time to reach [`TARGET_FRACTION`] of the capacity, hours.
     pub time_to_target_h: Value,
 }
 
 impl CurveSummary {
-    /// Exact values of a closed-form curve (no sds).
+    /// Exact values of a closed-form curve (no sds); the lag from its value
+    /// at `start_h`, the first reading.
     ///
     /// # Errors
     ///
     /// The curve never reaches the target level.
-    pub fn of_curve(curve: &dyn GrowthCurve<f64>) -> Result<Self> {
+    pub fn of_curve(curve: &dyn GrowthCurve<f64>, start_h: f64) -> Result<Self> {
         let capacity = curve.upper_asymptote();
+        let rate = curve.max_specific_rate_per_h();
+        let y0 = curve.value(start_h);
         Ok(Self {
             capacity_od: Value::exact(capacity),
-            rate_per_h: Value::exact(curve.max_specific_rate_per_h()),
+            rate_per_h: Value::exact(rate),
             doubling_time_h: Value::exact(curve.doubling_time_h()),
-            lag_h: Value::exact(curve.lag_h()),
+            lag_h: Value::exact(curve.inflection().time_h - (capacity / y0).ln() / rate - start_h),
             time_to_target_h: Value::exact(
                 curve
                     .time_to_reach(TARGET_FRACTION * capacity)
@@ -76,19 +86,37 @@ impl CurveSummary {
         })
     }
 
-    /// The batch fit's values with delta-method sds.
+    /// The batch fit's values with delta-method sds. The lag takes the
+    /// starting level as the device does, `start_od` (the median of the
+    /// first three readings, whose sd is `start_sd_od`), from `start_h`; its
+    /// sd includes the starting level's (the median of three normal readings
+    /// has variance (π/2)·sd²/3, a textbook result).
     ///
     /// # Errors
     ///
     /// Never in practice (the fitted curve always reaches 90 % of its own
     /// capacity); kept fallible like [`of_curve`](Self::of_curve).
-    pub fn of_fit(fit: &LogisticFit) -> Result<Self> {
-        let exact = Self::of_curve(&fit.curve())?;
-        let r = fit.rate_per_h;
+    pub fn of_fit(
+        fit: &LogisticFit,
+        start_h: f64,
+        start_od: f64,
+        start_sd_od: f64,
+    ) -> Result<Self> {
+        let exact = Self::of_curve(&fit.curve(), start_h)?;
+        let (k, r, tm) = (fit.capacity, fit.rate_per_h, fit.midpoint_h);
         let ln_target = (TARGET_FRACTION / (1.0 - TARGET_FRACTION)).ln();
         let with = |v: Value, gradient: [f64; 3]| Value {
             value: v.value,
             sd: Some(fit.sd_of(gradient)),
+        };
+        // λ = t_m − ln(K / y0) / r − start: ∂/∂K = −1/(rK),
+        // ∂/∂r = ln(K/y0)/r², ∂/∂t_m = 1, ∂/∂ln y0 = 1/r.
+        let log_ratio = (k / start_od).ln();
+        let var_ln_y0 = std::f64::consts::FRAC_PI_2 / 3.0 * (start_sd_od / start_od).powi(2);
+        let lag_fit_sd = fit.sd_of([-1.0 / (r * k), log_ratio / (r * r), 1.0]);
+        let lag = Value {
+            value: tm - log_ratio / r - start_h,
+            sd: Some((lag_fit_sd.powi(2) + var_ln_y0 / (r * r)).sqrt()),
         };
         Ok(Self {
             capacity_od: with(exact.capacity_od, [1.0, 0.0, 0.0]),
@@ -98,11 +126,34 @@ impl CurveSummary {
                 exact.doubling_time_h,
                 [0.0, -std::f64::consts::LN_2 / (r * r), 0.0],
             ),
-            // t_m − 2 / r
-            lag_h: with(exact.lag_h, [0.0, 2.0 / (r * r), 1.0]),
+            lag_h: lag,
             // t_m + ln(p / (1 − p)) / r
             time_to_target_h: with(exact.time_to_target_h, [0.0, -ln_target / (r * r), 1.0]),
         })
+    }
+
+    /// The online estimate's values with their sds. The capacity is the
+    /// fitted one even when the estimator would not yet publish it; the lag
+    /// is NaN while the estimator gives none.
+    #[must_use]
+    pub fn of_estimate(e: &Estimate<f32>) -> Self {
+        let m = |m: Measured<f32>| Value {
+            value: f64::from(m.value),
+            sd: Some(f64::from(m.sd)),
+        };
+        let nan = Value {
+            value: f64::NAN,
+            sd: None,
+        };
+        Self {
+            capacity_od: m(e.capacity.unwrap_or_else(|| e.capacity_unchecked())),
+            rate_per_h: m(e.rate_per_h),
+            doubling_time_h: m(e.doubling_time_h),
+            lag_h: e.lag_h.map_or(nan, m),
+            time_to_target_h: e
+                .time_to_fraction(crate::online::to_device(TARGET_FRACTION))
+                .map_or(nan, m),
+        }
     }
 
     fn rows(&self) -> [(&'static str, Value, usize); 5] {
@@ -110,7 +161,7 @@ impl CurveSummary {
             ("capacity (OD)", self.capacity_od, 4),
             ("growth rate (per h)", self.rate_per_h, 4),
             ("doubling time (h)", self.doubling_time_h, 3),
-            ("lag, tangent (h)", self.lag_h, 2),
+            ("lag, tangent on ln OD (h)", self.lag_h, 2),
             ("time to 90 % of capacity (h)", self.time_to_target_h, 2),
         ]
     }
@@ -194,7 +245,9 @@ pub struct DemoReport {
     pub fit: LogisticFit,
     /// Per reading: set aside by the batch fit as an outlier.
     pub rejected: Vec<bool>,
-    /// Truth and batch fit side by side.
+    /// The device's estimator and monitor, reading by reading.
+    pub steps: Vec<Step>,
+    /// Truth, batch fit and online estimate side by side.
     pub summary: Summary,
     /// The plot that was written.
     pub plot: PlotData,
@@ -243,19 +296,49 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
         .context("batch fit of the demo stream")?;
     let truth = crate::scenario::Truth::new(scenario)?;
     let curve = scenario.truth()?;
-    let summary = Summary {
-        columns: vec![
-            Column {
-                name: "truth".into(),
-                summary: CurveSummary::of_curve(curve.as_ref())?,
-            },
-            Column {
-                name: "batch fit (± sd)".into(),
-                summary: CurveSummary::of_fit(&fit)?,
-            },
-        ],
+    // The device, configured with the scenario's noise model and blank.
+    let settings = Settings {
+        noise_floor_od: Some(scenario.noise.floor_od),
+        noise_fraction: Some(scenario.noise.fraction),
+        blank_od: Some(scenario.sensor.blank_od.max(0.0)),
+        ceiling_od: scenario.sensor.ceiling_od,
+        gate_sigma: None,
     };
-    let plot = plot_data(scenario, &readings, &rejected, &fit, &truth, &summary);
+    let stream: Vec<(f64, f64)> = readings.iter().map(|r| (r.time_h, r.od)).collect();
+    let steps = online::run(
+        settings.config()?,
+        online::monitor_config(TARGET_FRACTION, 1.0)?,
+        &stream,
+    );
+    // The starting level as the device takes it: the median of the first
+    // three readings above the blank.
+    let start_h = readings.first().map_or(0.0, |r| r.time_h);
+    let mut first: Vec<f64> = readings
+        .iter()
+        .take(3)
+        .map(|r| r.od - scenario.sensor.blank_od)
+        .collect();
+    first.sort_by(f64::total_cmp);
+    let y0 = first.get(first.len() / 2).copied().unwrap_or(f64::NAN);
+    let start_sd = scenario.noise.floor_od + scenario.noise.fraction * y0.max(0.0);
+    let mut columns = vec![
+        Column {
+            name: "truth".into(),
+            summary: CurveSummary::of_curve(curve.as_ref(), start_h)?,
+        },
+        Column {
+            name: "batch fit (± sd)".into(),
+            summary: CurveSummary::of_fit(&fit, start_h, y0, start_sd)?,
+        },
+    ];
+    if let Some(e) = steps.last().and_then(|s| s.estimate) {
+        columns.push(Column {
+            name: "online f32 (± sd)".into(),
+            summary: CurveSummary::of_estimate(&e),
+        });
+    }
+    let summary = Summary { columns };
+    let plot = plot_data(scenario, &steps, &fit, &truth, &summary);
     crate::log::write_atomically(&paths.csv, |w| crate::scenario::write_csv(&readings, w))?;
     crate::plot::write_svg(&paths.svg, &plot)?;
     Ok(DemoReport {
@@ -263,65 +346,107 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
         readings,
         fit,
         rejected,
+        steps,
         summary,
         plot,
     })
 }
 
+/// The monitor's phases as (start, end, phase name) intervals.
+#[must_use]
+pub fn phase_intervals(steps: &[Step], end_h: f64) -> Vec<(f64, f64, &'static str)> {
+    let mut out: Vec<(f64, f64, &'static str)> = Vec::new();
+    for s in steps.iter().filter(|s| s.time_h.is_finite()) {
+        let name = s.phase.as_str();
+        match out.last_mut() {
+            Some(last) if last.2 == name => last.1 = s.time_h,
+            Some(last) => {
+                last.1 = s.time_h;
+                out.push((s.time_h, s.time_h, name));
+            }
+            None => out.push((s.time_h, s.time_h, name)),
+        }
+    }
+    if let Some(last) = out.last_mut() {
+        last.1 = last.1.max(end_h);
+    }
+    out
+}
+
+/// Time of the first saturation alert the monitor raised, hours.
+#[must_use]
+pub fn first_alert_h(steps: &[Step]) -> Option<f64> {
+    steps.iter().find_map(|s| {
+        s.events
+            .iter()
+            .any(|e| matches!(e.event, Event::SaturationAlert { .. }))
+            .then_some(s.time_h)
+    })
+}
+
 fn plot_data(
     scenario: &Scenario,
-    readings: &[Reading],
-    rejected: &[bool],
+    steps: &[Step],
     fit: &LogisticFit,
     truth: &crate::scenario::Truth,
     summary: &Summary,
 ) -> PlotData {
     let s = scenario.sampling;
+    let end_h = s.start_h + s.duration_h;
     let grid: Vec<f64> = (0..=400)
         .map(|i| s.start_h + s.duration_h * f64::from(i) / 400.0)
         .collect();
     let curve = fit.curve();
-    let t = &summary.columns[0].summary;
     let fit_target = summary.columns[1].summary.time_to_target_h.value;
-    PlotData {
-        title: format!("{} — batch fit", scenario.name),
-        readings: readings
+    let mut estimates = vec![BandCurve {
+        label: "batch fit".into(),
+        time_h: grid.clone(),
+        value: grid.iter().map(|&x| curve.value(x)).collect(),
+        sd: grid.iter().map(|&x| fit.value_sd(x)).collect(),
+    }];
+    if let Some(e) = steps.last().and_then(|s| s.estimate) {
+        let at: Vec<_> = grid
             .iter()
-            .zip(rejected)
-            .map(|(r, &rej)| PlotPoint {
-                time_h: r.time_h,
-                od: r.od,
-                rejected: rej,
+            .map(|&x| e.value_at(online::to_device(x)))
+            .collect();
+        estimates.push(BandCurve {
+            label: "online f32 (final)".into(),
+            time_h: grid.clone(),
+            value: at.iter().map(|m| f64::from(m.value)).collect(),
+            sd: at.iter().map(|m| f64::from(m.sd)).collect(),
+        });
+    }
+    let mut markers = vec![Marker {
+        time_h: fit_target,
+        label: "90 % of capacity (fit)".into(),
+    }];
+    if let Some(t) = first_alert_h(steps) {
+        markers.push(Marker {
+            time_h: t,
+            label: "saturation alert (monitor)".into(),
+        });
+    }
+    PlotData {
+        title: format!("{} — batch fit and online estimate", scenario.name),
+        readings: steps
+            .iter()
+            .map(|st| PlotPoint {
+                time_h: st.time_h,
+                od: st.value,
+                rejected: !st.outcome.is_accepted(),
             })
             .collect(),
         truth: grid.iter().map(|&x| (x, truth.od(x))).collect(),
-        estimates: vec![BandCurve {
-            label: "batch fit".into(),
-            time_h: grid.clone(),
-            value: grid.iter().map(|&x| curve.value(x)).collect(),
-            sd: grid.iter().map(|&x| fit.value_sd(x)).collect(),
-        }],
-        markers: vec![Marker {
-            time_h: fit_target,
-            label: "90 % of capacity (fit)".into(),
-        }],
-        phases: vec![
-            Phase {
-                start_h: s.start_h,
-                end_h: t.lag_h.value,
-                label: "lag (truth)".into(),
-            },
-            Phase {
-                start_h: t.lag_h.value,
-                end_h: t.time_to_target_h.value,
-                label: "growth".into(),
-            },
-            Phase {
-                start_h: t.time_to_target_h.value,
-                end_h: s.start_h + s.duration_h,
-                label: "near plateau".into(),
-            },
-        ],
+        estimates,
+        markers,
+        phases: phase_intervals(steps, end_h)
+            .into_iter()
+            .map(|(start_h, end_h, name)| Phase {
+                start_h,
+                end_h,
+                label: format!("{name} (monitor)"),
+            })
+            .collect(),
     }
 }
 
@@ -363,10 +488,47 @@ pub fn describe(report: &DemoReport, paths: &DemoPaths) -> String {
          (in noise sds), {} points.",
         report.fit.residual_sd, report.fit.points
     );
+    let online_rejected = report
+        .steps
+        .iter()
+        .filter(|s| !s.outcome.is_accepted())
+        .count();
+    let online_caught = report
+        .steps
+        .iter()
+        .zip(&report.readings)
+        .filter(|(s, r)| r.kind == Kind::Spike && !s.outcome.is_accepted())
+        .count();
+    let restarts = report
+        .steps
+        .iter()
+        .filter(|s| s.outcome == Outcome::Restarted)
+        .count();
     let _ = writeln!(
         out,
-        "  The online estimate will appear as a further column once it is wired in."
+        "  online: the device's f32 estimator fed reading by reading; it rejected \
+         {online_rejected} reading(s), {online_caught} of them bubbles; {restarts} restart(s)."
     );
+    let phases: Vec<String> =
+        phase_intervals(&report.steps, s.sampling.start_h + s.sampling.duration_h)
+            .iter()
+            .map(|(a, _, name)| format!("{name} from {a:.2} h"))
+            .collect();
+    let _ = writeln!(out, "  monitor phases: {}", phases.join(", "));
+    let truth_target = report.summary.columns[0].summary.time_to_target_h.value;
+    match first_alert_h(&report.steps) {
+        Some(t) => {
+            let _ = writeln!(
+                out,
+                "  saturation alert at {t:.2} h; the truth reaches 90 % of capacity at \
+                 {truth_target:.2} h ({:.2} h of warning).",
+                truth_target - t
+            );
+        }
+        None => {
+            let _ = writeln!(out, "  no saturation alert was raised.");
+        }
+    }
     let _ = writeln!(
         out,
         "\n  wrote {} (readings) and {} (plot)",
@@ -395,11 +557,13 @@ mod tests {
         assert_eq!(report.readings.len(), 241);
         let truth = &report.summary.columns[0].summary;
         // Closed forms of the invented logistic K = 1.5, r = 0.7, t_m = 8
-        // (FACTS.md, logistic definitions): doubling ln 2 / r, tangent lag
-        // t_m − 2/r, time to 90 % t_m + ln 9 / r.
+        // (FACTS.md, logistic definitions): doubling ln 2 / r, time to 90 %
+        // t_m + ln 9 / r. Lag on ln OD from the first reading t0 (≈ 0):
+        // t_m − ln(K / y(t0)) / r − t0 = −ln(1 + e^(−r (t_m − t0))) / r,
+        // about −0.0053 h: a logistic has (almost) no lag.
         assert!((truth.capacity_od.value - 1.5).abs() < 1e-12);
         assert!((truth.doubling_time_h.value - 2f64.ln() / 0.7).abs() < 1e-12);
-        assert!((truth.lag_h.value - (8.0 - 2.0 / 0.7)).abs() < 1e-12);
+        assert!((truth.lag_h.value + (1.0 + (-5.6f64).exp()).ln() / 0.7).abs() < 1e-4);
         assert!((truth.time_to_target_h.value - (8.0 + 9f64.ln() / 0.7)).abs() < 1e-9);
         // The batch fit lies within 4 of its own sds of the truth.
         let fit = &report.summary.columns[1].summary;
@@ -413,6 +577,25 @@ mod tests {
             assert!(sd > 0.0);
             assert!((f.value - t.value).abs() < 4.0 * sd, "{f:?} vs {t:?}");
         }
+        // The online f32 estimate, third column, also lies within 4 of its
+        // own sds of the closed-form truth, and the monitor alerted before
+        // the truth reached 90 % of its capacity.
+        let online = &report.summary.columns[2].summary;
+        for (t, f) in [
+            (truth.capacity_od, online.capacity_od),
+            (truth.rate_per_h, online.rate_per_h),
+            (truth.time_to_target_h, online.time_to_target_h),
+        ] {
+            let sd = f.sd.unwrap();
+            assert!(sd > 0.0);
+            assert!((f.value - t.value).abs() < 4.0 * sd, "{f:?} vs {t:?}");
+        }
+        let alert = first_alert_h(&report.steps).unwrap();
+        assert!(alert < truth.time_to_target_h.value, "{alert}");
+        assert_eq!(
+            phase_intervals(&report.steps, 20.0).last().unwrap().2,
+            "stationary"
+        );
         // Weighted by the true noise model, σ̂ is near 1 noise sd.
         assert!(
             (0.7..1.3).contains(&report.fit.residual_sd),
@@ -431,7 +614,7 @@ mod tests {
     #[test]
     fn summary_takes_more_columns() {
         let curve = plateau::Logistic::from_midpoint(1.0, 0.5, 6.0).unwrap();
-        let c = CurveSummary::of_curve(&curve).unwrap();
+        let c = CurveSummary::of_curve(&curve, 0.0).unwrap();
         let mut s = Summary::default();
         for name in ["truth", "batch fit", "online"] {
             s.columns.push(Column {
@@ -461,7 +644,7 @@ mod tests {
             })
             .collect();
         let fit = fit_logistic(&t, &y, None).unwrap();
-        let s = CurveSummary::of_fit(&fit).unwrap();
+        let s = CurveSummary::of_fit(&fit, 0.0, y[0], 0.01).unwrap();
         let h = 1e-6;
         let d = (2f64.ln() / (fit.rate_per_h + h) - 2f64.ln() / (fit.rate_per_h - h)) / (2.0 * h);
         let numeric = d.abs() * fit.rate_sd_per_h;

@@ -10,11 +10,19 @@
 //! * [`log`]: reading recorded logs (CSV) and writing output files atomically.
 //! * [`plot`]: SVG plots of readings, curves, bands, markers and phases.
 //! * [`demo`]: the built-in invented culture and its summary.
+//! * [`online`]: the device's `f32` estimator fed reading by reading, and its
+//!   settings.
+//! * [`replay`]: a recorded log through the estimator, CSV and JSON out.
+//! * [`fleet`]: the Monte Carlo accuracy benchmark.
 //!
 //! Units throughout: time in hours, signal in OD units, rates per hour.
 
+pub mod alerts;
 pub mod batch;
 pub mod demo;
+pub mod fleet;
 pub mod log;
+pub mod online;
 pub mod plot;
+pub mod replay;
 pub mod scenario;

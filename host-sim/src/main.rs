@@ -2,14 +2,21 @@
 //!
 //! Commands:
 //! * `demo`: the built-in invented culture, fitted and plotted;
-//! * `simulate SCENARIO.toml --out stream.csv`: a synthetic sensor stream.
+//! * `simulate SCENARIO.toml --out stream.csv`: a synthetic sensor stream;
+//! * `replay LOG.csv`: a recorded log through the device's estimator;
+//! * `fleet`: the Monte Carlo accuracy benchmark.
 
 use std::path::PathBuf;
 
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 use host_sim::demo::{self, DemoPaths};
+use host_sim::fleet;
+use host_sim::log::LogOptions;
+use host_sim::online::Settings;
+use host_sim::replay::{self, ReplayOptions};
 use host_sim::scenario::{self, Scenario};
+use std::io::IsTerminal;
 
 /// Host-side simulator for plateau (all built-in data are invented).
 #[derive(Parser, Debug)]
@@ -46,6 +53,66 @@ enum Command {
         #[arg(long)]
         seed: Option<u64>,
     },
+    /// Feed a recorded CSV log through the device's f32 estimator, reading by
+    /// reading; write one output row per reading and a JSON summary with the
+    /// batch fit of the same log beside it.
+    Replay {
+        /// The log (CSV with a header row).
+        log: PathBuf,
+        /// Name of the time column (hours).
+        #[arg(long, default_value = "time_h")]
+        time_col: String,
+        /// Name of the value column (OD units).
+        #[arg(long, default_value = "od")]
+        value_col: String,
+        /// Per-reading CSV output (written atomically).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// JSON summary output (written atomically).
+        #[arg(long)]
+        summary: Option<PathBuf>,
+        /// Skip rows that cannot be parsed instead of failing.
+        #[arg(long)]
+        skip_bad_rows: bool,
+        /// Fraction of the capacity that counts as saturation.
+        #[arg(long, default_value_t = 0.9)]
+        alert_fraction: f64,
+        /// How long before saturation to alert, hours.
+        #[arg(long, default_value_t = 1.0)]
+        alert_lead_h: f64,
+        /// Estimator settings file (TOML); flags override it.
+        #[arg(long)]
+        config: Option<PathBuf>,
+        /// Noise floor: sd of a reading at zero signal, OD units.
+        #[arg(long)]
+        noise_floor: Option<f64>,
+        /// Proportional noise: extra sd per unit of signal.
+        #[arg(long)]
+        noise_fraction: Option<f64>,
+        /// Blank (medium-only reading) subtracted before the fit, OD units.
+        #[arg(long)]
+        blank: Option<f64>,
+        /// Sensor ceiling: readings at or above are saturated, OD units.
+        #[arg(long)]
+        ceiling: Option<f64>,
+        /// Innovation gate, standard deviations.
+        #[arg(long)]
+        gate: Option<f64>,
+    },
+    /// Monte Carlo accuracy benchmark of the online estimator against the
+    /// truth, the batch fit and the Cramér–Rao bound, over seeded invented
+    /// cultures.
+    Fleet {
+        /// Number of cultures.
+        #[arg(long, default_value_t = 200)]
+        runs: usize,
+        /// Seed of the fleet.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Print machine-readable JSON instead of tables.
+        #[arg(long)]
+        json: bool,
+    },
 }
 
 fn main() -> Result<()> {
@@ -65,6 +132,67 @@ fn main() -> Result<()> {
             let scenario = Scenario::from_toml(demo::DEMO_SCENARIO)?;
             let report = demo::run(&scenario, &paths)?;
             print!("{}", demo::describe(&report, &paths));
+        }
+        Command::Replay {
+            log,
+            time_col,
+            value_col,
+            out,
+            summary,
+            skip_bad_rows,
+            alert_fraction,
+            alert_lead_h,
+            config,
+            noise_floor,
+            noise_fraction,
+            blank,
+            ceiling,
+            gate,
+        } => {
+            let file = match &config {
+                Some(path) => Settings::load(path)?,
+                None => Settings::default(),
+            };
+            let flags = Settings {
+                noise_floor_od: noise_floor,
+                noise_fraction,
+                blank_od: blank,
+                ceiling_od: ceiling,
+                gate_sigma: gate,
+            };
+            let options = ReplayOptions {
+                log: LogOptions {
+                    time_col,
+                    value_col,
+                    skip_bad_rows,
+                },
+                settings: file.overridden_by(flags),
+                alert_fraction,
+                alert_lead_h,
+            };
+            let result = replay::run_files(&log, out.as_deref(), summary.as_deref(), &options)?;
+            for line in &result.skipped_lines {
+                eprintln!("skipped unparseable line {line}");
+            }
+            print!("{}", replay::describe(&result));
+        }
+        Command::Fleet { runs, seed, json } => {
+            let options = fleet::FleetOptions {
+                progress: !json && std::io::stderr().is_terminal(),
+                ..fleet::FleetOptions::new(runs, seed)
+            };
+            let report = fleet::run(&options)?;
+            let monitor = host_sim::alerts::run(runs, seed, 1.0);
+            if json {
+                let mut value = fleet::to_json(&report);
+                if let Some(object) = value.as_object_mut() {
+                    object.insert("monitor".into(), serde_json::to_value(&monitor)?);
+                }
+                println!("{}", serde_json::to_string_pretty(&value)?);
+            } else {
+                print!("{}", fleet::render(&report));
+                print!("{}", host_sim::alerts::render(&monitor));
+            }
         }
         Command::Simulate {
             scenario: path,

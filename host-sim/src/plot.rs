@@ -212,7 +212,7 @@ pub fn render_svg(data: &PlotData, width: u32, height: u32) -> Result<String> {
                 .legend(move |(x, y)| Cross::new((x + 10, y), 4, red.stroke_width(2)));
         }
 
-        for m in &data.markers {
+        for (i, m) in data.markers.iter().enumerate() {
             let colour = RGBColor(230, 85, 13);
             chart
                 .draw_series(DashedLineSeries::new(
@@ -222,7 +222,9 @@ pub fn render_svg(data: &PlotData, width: u32, height: u32) -> Result<String> {
                     colour.stroke_width(2),
                 ))
                 .map_err(draw_err)?;
-            let y = y_range.start + 0.08 * (y_range.end - y_range.start);
+            // Labels step up one line per marker so neighbours do not overlap.
+            #[allow(clippy::cast_precision_loss)] // a handful of markers
+            let y = y_range.start + (0.08 + 0.05 * i as f64) * (y_range.end - y_range.start);
             chart
                 .draw_series(std::iter::once(Text::new(
                     m.label.clone(),

@@ -49,11 +49,12 @@ pub struct EstimatorConfig<T = f32> {
     pub(crate) max_rate_per_h: T,
     pub(crate) max_consecutive_rejections: u8,
     pub(crate) refit_iterations: u8,
+    pub(crate) refit_every: u8,
     pub(crate) min_readings: u8,
 }
 
 /// The longest run of held-back readings the estimator keeps (fixed memory).
-pub(crate) const MAX_HELD: usize = 8;
+pub(crate) const MAX_HELD: usize = 4;
 
 impl<T: Real> Default for EstimatorConfig<T> {
     fn default() -> Self {
@@ -77,6 +78,7 @@ impl<T: Real> EstimatorConfig<T> {
             max_rate_per_h: T::from_f64(3.0),
             max_consecutive_rejections: 4,
             refit_iterations: 2,
+            refit_every: 1,
             min_readings: 6,
         }
     }
@@ -140,7 +142,7 @@ impl<T: Real> EstimatorConfig<T> {
     }
 
     /// How many consecutive gated readings make the estimator stop calling
-    /// them spikes (1 to 8, default 4). If they all sit below
+    /// them spikes (1 to 4, default 4). If they all sit below
     /// `dilution_ratio` × prediction the culture was diluted and the estimator
     /// restarts from them; otherwise they are accepted if they agree with
     /// each other, so the gate can never starve the estimator. The same count
@@ -148,7 +150,7 @@ impl<T: Real> EstimatorConfig<T> {
     /// taken as a clock reset: the estimator restarts.
     ///
     /// # Errors
-    /// Out of 1..=8.
+    /// Out of 1..=4.
     pub fn max_consecutive_rejections(mut self, count: u8) -> Result<Self, Error> {
         if count == 0 || usize::from(count) > MAX_HELD {
             return Err(Error::OutOfRange {
@@ -229,6 +231,25 @@ impl<T: Real> EstimatorConfig<T> {
             });
         }
         self.refit_iterations = iterations;
+        Ok(self)
+    }
+
+    /// Refit over the whole history every `every` accepted readings (1 to
+    /// 64, default 1: every reading). In between, each reading updates the
+    /// estimate by one extended-Kalman-filter step, which costs a small
+    /// fraction of a refit: the cost per reading falls roughly as 1/`every`.
+    /// Accuracy first: the README's results table gives the accuracy and the
+    /// cost for 1 and for larger values; choose by them.
+    ///
+    /// # Errors
+    /// Out of 1..=64.
+    pub fn refit_every(mut self, every: u8) -> Result<Self, Error> {
+        if !(1..=64).contains(&every) {
+            return Err(Error::OutOfRange {
+                parameter: "refit_every",
+            });
+        }
+        self.refit_every = every;
         Ok(self)
     }
 

@@ -44,7 +44,9 @@ impl<T: Real> Measured<T> {
 pub enum Rejection {
     /// Time or value is NaN or infinite.
     NotFinite,
-    /// The value is below zero.
+    /// The value lies below the blank by more than noise explains
+    /// (`gate_sigma` × `noise_floor`): a negative or otherwise impossible
+    /// reading.
     Negative,
     /// The value is at or above the configured sensor ceiling (saturated).
     AtCeiling,
@@ -118,11 +120,18 @@ pub struct Estimate<T = f32> {
     /// Inflection (midpoint) time `t_m`, hours on the caller's clock; `None`
     /// while the capacity is.
     pub inflection_time_h: Option<Measured<T>>,
-    /// Lag by the tangent construction, `t_m` − 2/r, hours on the caller's
-    /// clock (this is Zwietering's λ for the logistic); `None` while the
-    /// capacity is.
+    /// Lag, hours: from the starting reading (the median of the first three
+    /// since the last restart, level y₀ at time t₀) to the time λ at which
+    /// the exponential-phase line of the fitted curve on the log scale,
+    /// ln y = ln K − r (`t_m` − t), reaches y₀: λ − t₀ with
+    /// λ = `t_m` − ln(K / y₀) / r. This is the tangent construction on ln y
+    /// used by Zwietering et al. (1990) and by Baranyi & Roberts (1994); a
+    /// culture that grows from its first reading has a lag near zero. `None`
+    /// while the capacity is, or when the starting level is not clear of the
+    /// noise (its relative sd above 0.2). Its sd includes the uncertainty of
+    /// y₀.
     #[doc(alias = "lambda")]
-    pub lag_end_h: Option<Measured<T>>,
+    pub lag_h: Option<Measured<T>>,
     /// The fitted signal (blank included) at the latest accepted reading.
     pub fitted_value: Measured<T>,
     /// Time of the latest accepted reading, hours.
@@ -262,7 +271,7 @@ mod tests {
                 sd: 1.0,
             },
             inflection_time_h: None,
-            lag_end_h: None,
+            lag_h: None,
             fitted_value: Measured {
                 value: 1.0,
                 sd: 1.0,

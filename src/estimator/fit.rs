@@ -95,6 +95,13 @@ impl<T: Real> Sym3<T> {
         out
     }
 
+    /// `self − w·v·vᵀ`.
+    pub(crate) fn minus_outer(&self, v: &[T; 3], w: T) -> Self {
+        let mut out = *self;
+        out.add_outer(v, -w);
+        out
+    }
+
     pub(crate) fn is_finite(&self) -> bool {
         self.0.iter().all(|a| a.is_finite())
     }
@@ -238,36 +245,59 @@ pub(crate) fn sigmoid<T: Real>(x: T) -> T {
     }
 }
 
-/// Model value averaged over a slot whose reading times have variance
-/// `spread_h2` around `time_h`: f(t̄) + ½ f''(t̄) var(t) (second-order Taylor
-/// expansion), with f'' = r² f (1 − s)(1 − 2s) for the logistic. Without it,
-/// merging readings along the convex early curve biases the rate low.
-pub(crate) fn slot_model<T: Real>(theta: &[T; 3], time_h: T, spread_h2: T) -> (T, [T; 3]) {
-    let (f, g) = model(theta, time_h);
-    if spread_h2 > T::ZERO {
-        let r = theta[1].exp();
-        let s = sigmoid(r * (time_h - theta[2]));
-        let curvature = r * r * f * (T::ONE - s) * (T::ONE - T::TWO * s);
-        (f + T::HALF * curvature * spread_h2, g)
-    } else {
-        (f, g)
+/// θ = (ln K, ln r, `t_m`) with K and r exponentiated once, for a pass over
+/// the slots.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Curve<T> {
+    pub(crate) k: T,
+    pub(crate) r: T,
+    pub(crate) tm: T,
+}
+
+impl<T: Real> Curve<T> {
+    pub(crate) fn new(theta: &[T; 3]) -> Self {
+        Self {
+            k: theta[0].exp(),
+            r: theta[1].exp(),
+            tm: theta[2],
+        }
+    }
+
+    /// Value above blank, its gradient in θ, and the sigmoid s, at `time_h`
+    /// (hours since the origin). One `exp`.
+    pub(crate) fn eval(&self, time_h: T) -> (T, [T; 3], T) {
+        // Beyond |x| = 100 the sigmoid is saturated to far below f64
+        // precision (e^−100 ≈ 4e−44), so clamping changes no value; it keeps
+        // x finite for a time far from the midpoint (e.g. a reading at
+        // t = 3e38 h), where x·s(1 − s) was ∞·0 = NaN in the gradient.
+        let x = (self.r * (time_h - self.tm)).clamp_to(T::from_f64(-100.0), T::from_f64(100.0));
+        let s = sigmoid(x);
+        let q = s * (T::ONE - s);
+        let f = self.k * s;
+        (f, [f, self.k * q * x, -self.k * self.r * q], s)
+    }
+
+    /// Value averaged over a slot whose reading times have variance
+    /// `spread_h2` around `time_h`: f(t̄) + ½ f''(t̄) var(t) (second-order
+    /// Taylor expansion), with f'' = r² f (1 − s)(1 − 2s) for the logistic.
+    /// Without it, merging readings along the convex early curve biases the
+    /// rate low. The gradient is that of f(t̄).
+    pub(crate) fn slot(&self, time_h: T, spread_h2: T) -> (T, [T; 3]) {
+        let (f, g, s) = self.eval(time_h);
+        if spread_h2 > T::ZERO {
+            let curvature = self.r * self.r * f * (T::ONE - s) * (T::ONE - T::TWO * s);
+            (f + T::HALF * curvature * spread_h2, g)
+        } else {
+            (f, g)
+        }
     }
 }
 
 /// Model value above blank and its gradient in θ = (ln K, ln r, `t_m`) at
 /// `time_h` (hours since the origin).
 pub(crate) fn model<T: Real>(theta: &[T; 3], time_h: T) -> (T, [T; 3]) {
-    let k = theta[0].exp();
-    let r = theta[1].exp();
-    // Beyond |x| = 100 the sigmoid is saturated to far below f64 precision
-    // (e^−100 ≈ 4e−44), so clamping changes no value; it keeps x finite for
-    // a time far from the midpoint (e.g. a reading at t = 3e38 h), where
-    // x·s(1 − s) was ∞·0 = NaN in the gradient.
-    let x = (r * (time_h - theta[2])).clamp_to(T::from_f64(-100.0), T::from_f64(100.0));
-    let s = sigmoid(x);
-    let q = s * (T::ONE - s);
-    let f = k * s;
-    (f, [f, k * q * x, -k * r * q])
+    let (f, g, _) = Curve::new(theta).eval(time_h);
+    (f, g)
 }
 
 /// Bounds that keep the parameters physical and the state finite:
@@ -285,25 +315,28 @@ pub(crate) fn clamp_theta<T: Real>(theta: &mut [T; 3]) {
 pub(crate) struct Normal<T> {
     /// `JᵀWJ` plus the prior's information.
     pub(crate) info: Sym3<T>,
-    /// JᵀW·residual plus the prior's pull.
+    /// `JᵀW`·residual plus the prior's pull.
     pub(crate) gradient: [T; 3],
-    /// Robust weighted sum of squares of the data (prior excluded): see
-    /// [`robust_sse`].
-    pub(crate) sse: T,
+    /// The objective at θ: weighted sum of squares with these weights, prior
+    /// included.
+    pub(crate) objective: T,
 }
 
-/// Prior on ln K: centred at ln(2 × the largest reading) with standard deviation 2 (a factor
-/// of e² ≈ 7.4 either way). It only matters while the data cannot place the
-/// capacity (before the inflection), where it keeps the fit off the ridge
-/// K → ∞; once the plateau is in sight its information is negligible.
+/// Prior on ln K: centred at ln(2 × the largest reading) with standard
+/// deviation 2 (a factor of e² ≈ 7.4 either way). It only matters while the
+/// data cannot place the capacity (before the inflection), where it keeps
+/// the fit off the ridge K → ∞; once the plateau is in sight its information
+/// is negligible.
 pub(crate) struct Prior<T> {
     pub(crate) ln_k_mean: T,
     pub(crate) ln_k_info: T,
 }
 
-/// Weights and residuals for one pass. `scale` is the current noise scale,
-/// used for the Huber down-weighting of residuals beyond 3 standard deviations
-/// (Huber 1964), so a spike that slipped into the buffer cannot drag the fit.
+/// Weights and residuals for one pass, one `exp` per slot. `scale` is the
+/// current noise scale, used for the Huber down-weighting of residuals
+/// beyond 3 standard deviations (Huber 1964), so a spike that slipped into
+/// the buffer cannot drag the fit. Fills `z2` with the squared standardised
+/// residuals (before Huber) for [`robust_sse`].
 pub(crate) fn accumulate<T: Real, const N: usize>(
     history: &History<T, N>,
     config: &EstimatorConfig<T>,
@@ -314,34 +347,37 @@ pub(crate) fn accumulate<T: Real, const N: usize>(
     z2: &mut [T; N],
 ) -> Normal<T> {
     let huber = T::from_f64(3.0);
+    let cut2 = huber * huber * scale * scale;
+    let curve = Curve::new(theta);
     let mut info = Sym3::zero();
     let mut gradient = [T::ZERO; 3];
+    let mut sse = T::ZERO;
     let n = history.len();
     for (i, weight) in weights.iter_mut().enumerate().take(n) {
         let (t, y, c) = history.slot(i);
-        let (f, g) = slot_model(theta, t, history.spread_h2(i));
+        let (f, g) = curve.slot(t, history.spread_h2(i));
         let sd = config.noise_sd(f);
         let mut w = T::from_u32(u32::from(c)) / (sd * sd);
         let e = y - f;
         z2[i] = e * e * w;
-        let z = z2[i].sqrt() / scale;
-        if z > huber {
-            w *= huber / z;
+        if z2[i] > cut2 {
+            // Huber: weight × 3 / z; the square root only for outliers.
+            w *= huber * scale / z2[i].sqrt();
         }
         *weight = w;
         info.add_outer(&g, w);
         for k in 0..3 {
             gradient[k] += w * g[k] * e;
         }
+        sse += w * e * e;
     }
     let dk = prior.ln_k_mean - theta[0];
     info.0[0] += prior.ln_k_info;
     gradient[0] += prior.ln_k_info * dk;
-    let sse = robust_sse(&mut z2[..n]);
     Normal {
         info,
         gradient,
-        sse,
+        objective: sse + prior.ln_k_info * dk * dk,
     }
 }
 
@@ -385,10 +421,11 @@ pub(crate) fn objective<T: Real, const N: usize>(
     prior: &Prior<T>,
     weights: &[T; N],
 ) -> T {
+    let curve = Curve::new(theta);
     let mut sse = T::ZERO;
     for (i, &w) in weights.iter().enumerate().take(history.len()) {
         let (t, y, _) = history.slot(i);
-        let e = y - slot_model(theta, t, history.spread_h2(i)).0;
+        let e = y - curve.slot(t, history.spread_h2(i)).0;
         sse += w * e * e;
     }
     let dk = prior.ln_k_mean - theta[0];

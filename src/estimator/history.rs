@@ -109,7 +109,9 @@ impl<T: Real, const N: usize> History<T, N> {
             let cost = c0 * self.spread_h2[i]
                 + c1 * self.spread_h2[i + 1]
                 + c0 * c1 / (c0 + c1) * gap * gap;
-            if cost < best_cost {
+            // Near-ties (within 0.01 %) go to the older pair, so rounding
+            // cannot make f32 and f64 summarise the same run differently.
+            if cost < best_cost * T::from_f64(0.9999) {
                 best_cost = cost;
                 best = i;
             }

@@ -51,7 +51,7 @@ impl<T: Real> MonitorConfig<T> {
             alert_lead_h: T::ONE,
             alert_max_rel_sd: T::from_f64(0.1),
             rearm_fraction: T::from_f64(0.6),
-            sensor_min: T::ZERO,
+            sensor_min: -T::INFINITY,
             sensor_max: T::INFINITY,
             gap_h: T::ONE,
             decline_fraction: T::from_f64(0.1),
@@ -113,7 +113,8 @@ impl<T: Real> MonitorConfig<T> {
     }
 
     /// The sensor's valid range in signal units; readings outside raise an
-    /// out-of-range fault. Default 0 to infinity.
+    /// out-of-range fault. Default: no range (−∞ to ∞); readings the
+    /// estimator finds impossible raise an invalid fault anyway.
     ///
     /// # Errors
     /// `min` must be finite, `max` > `min` (infinity allowed).

@@ -26,8 +26,9 @@
 //!   readings' median has already reached the alert level. It re-arms when
 //!   the readings fall below `rearm_fraction` of capacity or the estimator
 //!   restarts (a dilution).
-//! * **Targets** fire "due" the same way (early end of the interval within
-//!   the lead time) and "reached" when the readings' median reaches them.
+//! * **Targets** fire "due" when the forecast is informative (its sd at most
+//!   the lead time) and the early end of its 95 % interval is within the
+//!   lead time, and "reached" when the readings' median reaches them.
 
 mod config;
 mod event;
@@ -65,7 +66,7 @@ struct TargetState<T> {
 }
 
 /// The culture monitor. `TARGETS` user targets (default 4) and an event
-/// queue of `EVENTS` (default 16); when the queue is full the oldest event is
+/// queue of `EVENTS` (default 8); when the queue is full the oldest event is
 /// dropped and counted in [`Monitor::events_lost`].
 ///
 /// # Examples
@@ -88,7 +89,7 @@ struct TargetState<T> {
 /// # Ok::<(), plateau::Error>(())
 /// ```
 #[derive(Clone, Debug)]
-pub struct Monitor<T: Real = f32, const TARGETS: usize = 4, const EVENTS: usize = 16> {
+pub struct Monitor<T: Real = f32, const TARGETS: usize = 4, const EVENTS: usize = 8> {
     config: MonitorConfig<T>,
     phase: Phase,
     pending: Phase,
@@ -249,7 +250,15 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         if outcome == Outcome::Restarted {
             self.restart(time_h);
         }
-        if outcome.is_accepted() {
+        // Readings the estimator accepted or gated as spikes are real sensor
+        // values: the median of the last three of them (robust to a single
+        // spike) decides "reached" and "decline", which the growth model
+        // cannot see when the culture stops following it.
+        let valid = matches!(
+            outcome,
+            Outcome::Accepted | Outcome::Restarted | Outcome::Rejected(Rejection::Spike)
+        );
+        if valid {
             self.recent[usize::from(self.recent_next)] = value;
             self.recent_next = (self.recent_next + 1) % 3;
             self.recent_count = (self.recent_count + 1).min(3);
@@ -258,9 +267,7 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         let saturation_eta_h = estimate
             .filter(|e| e.capacity.is_some())
             .and_then(|e| e.time_to_fraction(self.config.alert_fraction));
-        if outcome.is_accepted()
-            && let Some(e) = estimate
-        {
+        if valid && let Some(e) = estimate {
             self.saturation(time_h, e, saturation_eta_h);
             self.targets_due(time_h, e);
         }
@@ -450,8 +457,12 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         }
         let alert_level = self.config.alert_fraction * capacity.value;
         let reached = level_now.is_some_and(|l| l >= alert_level);
+        // A forecast time already in the past while the readings are below
+        // the alert level means the estimate is stale (a dilution the
+        // estimator has not yet restarted on): wait for the readings.
         let due = eta.is_some_and(|eta| {
-            eta.value - T::from_f64(1.96) * eta.sd - time_h <= self.config.alert_lead_h
+            eta.value >= time_h
+                && eta.value - T::from_f64(1.96) * eta.sd - time_h <= self.config.alert_lead_h
         });
         if reached || due {
             self.alert_active = true;
@@ -486,6 +497,7 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
             if !state.due
                 && !state.reached
                 && let Some(eta) = forecast(state.target, e)
+                && eta.sd <= lead
                 && eta.value - T::from_f64(1.96) * eta.sd - time_h <= lead
             {
                 state.due = true;

@@ -37,9 +37,9 @@ use crate::{Error, Estimate, Estimator, EstimatorConfig, Measured, Real};
 #[derive(Clone, Debug)]
 pub struct Watch<
     T: Real = f32,
-    const N: usize = 32,
+    const N: usize = 16,
     const TARGETS: usize = 4,
-    const EVENTS: usize = 16,
+    const EVENTS: usize = 8,
 > {
     estimator: Estimator<T, N>,
     monitor: Monitor<T, TARGETS, EVENTS>,

@@ -305,8 +305,8 @@ pub fn check_estimate(e: &Estimate<f32>, context: &str) {
     if let Some(m) = &e.inflection_time_h {
         check_measured(m, "inflection_time_h", context);
     }
-    if let Some(m) = &e.lag_end_h {
-        check_measured(m, "lag_end_h", context);
+    if let Some(m) = &e.lag_h {
+        check_measured(m, "lag_h", context);
     }
     assert!(
         e.latest_time_h.is_finite() && e.noise_scale.is_finite() && e.noise_scale > 0.0,

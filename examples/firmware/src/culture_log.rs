@@ -165,3 +165,12 @@ pub const CULTURE_LOG: [LogEntry; 121] = [
     LogEntry { time_min: 1190, counts: 144893 },
     LogEntry { time_min: 1200, counts: 148295 },
 ];
+
+/// Minutes since inoculation of the invented bubble event.
+pub const BUBBLE_TIME_MIN: u16 = 600;
+
+/// Minutes since inoculation of the invented full scale event.
+pub const FULL_SCALE_TIME_MIN: u16 = 740;
+
+/// Minutes since inoculation of the invented dark event.
+pub const DARK_TIME_MIN: u16 = 900;

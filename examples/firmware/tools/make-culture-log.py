@@ -106,6 +106,10 @@ for t_min, c, event in rows:
     note = f" // invented event: {event}" if event else ""
     out.append(f"    LogEntry {{ time_min: {t_min}, counts: {c} }},{note}\n")
 out.append("];\n")
+for t_min, c, event in rows:
+    if event:
+        out.append(f"\n/// Minutes since inoculation of the invented {event.replace('_', ' ')} event.\n")
+        out.append(f"pub const {event.upper()}_TIME_MIN: u16 = {t_min};\n")
 
 with open("src/culture_log.rs", "w") as f:
     f.write("".join(out))
