@@ -218,3 +218,45 @@ fn a_million_rows_read_correctly() {
     // asserted (the replay owner decides).
     eprintln!("peak RSS before {before:?} kB, after {after:?} kB");
 }
+
+/// The replay command on hostile logs: a non-zero exit with the reason (and
+/// the line, where there is one) on stderr, no panic, and no output file
+/// at all (outputs are written atomically, only on success).
+#[test]
+fn replay_cli_fails_cleanly_without_partial_output() {
+    let cases: [(&str, &[u8], Option<&str>); 6] = [
+        ("empty", b"", None),
+        ("missing-column", b"time_h,absorbance\n0,0.1\n", None),
+        ("semicolons", b"time_h;od\n0;0.1\n", None),
+        (
+            "comma-decimals",
+            b"time_h,od\n0,0.10\n0,5,0,123\n",
+            Some("line 3"),
+        ),
+        ("bad-number", b"time_h,od\n0,0.1\n1,abc\n", Some("line 3")),
+        ("bad-utf8", b"time_h,od\n0,0.1\n1,\xff\n", Some("line 3")),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    for (name, content, line) in cases {
+        let log = dir.path().join(format!("{name}.csv"));
+        std::fs::write(&log, content).unwrap();
+        let out = dir.path().join(format!("{name}.out.csv"));
+        let summary = dir.path().join(format!("{name}.json"));
+        let output = std::process::Command::new(env!("CARGO_BIN_EXE_host-sim"))
+            .arg("replay")
+            .arg(&log)
+            .arg("--out")
+            .arg(&out)
+            .arg("--summary")
+            .arg(&summary)
+            .output()
+            .unwrap();
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(!output.status.success(), "{name}: exit 0");
+        assert!(!stderr.contains("panicked"), "{name}: {stderr}");
+        if let Some(line) = line {
+            assert!(stderr.contains(line), "{name}: {stderr}");
+        }
+        assert!(!out.exists() && !summary.exists(), "{name}: partial output");
+    }
+}
