@@ -13,9 +13,9 @@ use plateau::{
     PhotometerConfig, Reading, SamplerConfig,
 };
 
-/// One line per type the device keeps. Add the monitor here when it lands, in
-/// the same `name_bytes` form. The estimator holds no `usize`, so its sizes
-/// are the Cortex-M4's too.
+/// One line per type the device keeps. The estimator holds no `usize`, so its
+/// sizes are the Cortex-M4's too; the monitor's event queue keeps two `usize`
+/// indices (8 bytes more here than on the Cortex-M4).
 fn footprint() -> Vec<(&'static str, usize)> {
     vec![
         (
@@ -31,7 +31,7 @@ fn footprint() -> Vec<(&'static str, usize)> {
         ("optical_density_bytes", size_of::<OpticalDensity<f32>>()),
         ("reading_bytes", size_of::<Reading<f32>>()),
         ("sampler_config_bytes", size_of::<SamplerConfig>()),
-        // The running state, for the default 32 history slots and for 16 and 24.
+        // The running state, for the default 16 history slots and for 16 and 24.
         ("estimator_state_bytes", size_of::<Estimator<f32>>()),
         (
             "estimator_state_16_slots_bytes",
@@ -45,7 +45,17 @@ fn footprint() -> Vec<(&'static str, usize)> {
         ("estimator_config_bytes", size_of::<EstimatorConfig<f32>>()),
         ("estimate_bytes", size_of::<Estimate<f32>>()),
         ("outcome_bytes", size_of::<Outcome>()),
-        // ("monitor_bytes", size_of::<plateau::Monitor<f32>>()),
+        // Default monitor: 4 targets, 8 queued events.
+        ("monitor_bytes", size_of::<plateau::Monitor<f32>>()),
+        (
+            "monitor_2_targets_4_events_bytes",
+            size_of::<plateau::Monitor<f32, 2, 4>>(),
+        ),
+        (
+            "monitor_config_bytes",
+            size_of::<plateau::MonitorConfig<f32>>(),
+        ),
+        ("watch_bytes", size_of::<plateau::Watch<f32>>()),
     ]
 }
 

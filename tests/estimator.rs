@@ -458,3 +458,57 @@ fn intervals_widen_when_the_culture_is_not_a_logistic() {
     }
     assert!(covered >= 17, "covered {covered}/20");
 }
+
+/// A noiseless logistic stream: the f32 estimate converges to the closed
+/// form's capacity and rate within 1e-3 relative (closed form: FACTS.md).
+#[test]
+fn noiseless_stream_converges_to_the_closed_form() {
+    let truth = reference_culture();
+    let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
+    for i in 0..=240 {
+        let t = f64::from(i) / 12.0;
+        assert!(
+            estimator
+                .update(t as f32, truth.value(t) as f32)
+                .is_accepted()
+        );
+    }
+    let e = estimator.estimate().unwrap();
+    let k = f64::from(e.capacity.unwrap().value);
+    let r = f64::from(e.rate_per_h.value);
+    assert!((k / 1.5 - 1.0).abs() < 1e-3, "capacity {k}");
+    assert!((r / 0.7 - 1.0).abs() < 1e-3, "rate {r}");
+    let m = f64::from(e.inflection_time_h.unwrap().value);
+    assert!((m - 8.0).abs() < 1e-2, "midpoint {m}");
+}
+
+/// Carlson's 1913 yeast culture, hourly for 18 h (Carlson, Biochem. Z.
+/// 57:313–334, 1913, as tabulated by Pearl 1927; FACTS.md), fed as a stream.
+/// Its unweighted least-squares logistic fit (FACTS.md, computed with a
+/// general-purpose fitter): K = 663.02 ± 1.70, r = 0.54699 ± 0.00558 per h.
+/// With a constant noise model (the fit's residual sd, 3.485) the online
+/// estimate must agree within two standard errors.
+#[test]
+fn carlson_yeast_matches_the_published_least_squares_fit() {
+    const YEAST: [f32; 19] = [
+        9.6, 18.3, 29.0, 47.2, 71.1, 119.1, 174.6, 257.3, 350.7, 441.0, 513.3, 559.7, 594.8, 629.4,
+        640.8, 651.1, 655.9, 659.6, 661.8,
+    ];
+    let config = EstimatorConfig::new().noise(3.485, 0.0).unwrap();
+    let mut estimator = Estimator::<f32>::new(config);
+    for (hour, &amount) in YEAST.iter().enumerate() {
+        let t = f32::from(u8::try_from(hour).unwrap());
+        assert!(estimator.update(t, amount).is_accepted(), "hour {hour}");
+    }
+    let e = estimator.estimate().unwrap();
+    let k = e.capacity.unwrap();
+    let r = e.rate_per_h;
+    eprintln!("Carlson online: K {k:?}, r {r:?}");
+    assert!((f64::from(k.value) - 663.02).abs() < 2.0 * 1.70, "{k:?}");
+    assert!(
+        (f64::from(r.value) - 0.54699).abs() < 2.0 * 0.00558,
+        "{r:?}"
+    );
+    // Its own standard errors are of the published size (within a factor 2).
+    assert!(f64::from(k.sd) > 0.85 && f64::from(k.sd) < 3.4, "{k:?}");
+}

@@ -44,7 +44,7 @@ const INTERVAL_H: f64 = 5.0 / 60.0;
 /// its tails are wider than its sds say (6.7 sd in 64 000 draws, where a
 /// normal gives about 4.4).
 ///
-/// After merging main (EKF steps between refits) the run takes 2.4 s and
+/// After merging main (EKF steps between refits) the run takes 2.1–2.4 s and
 /// FAILS this bound once: reading 409 014 reports capacity 1.382 ± 0.014
 /// (a 1.0 % sd, a third of the Cramér–Rao 3.3 % for one cycle's readings:
 /// overconfident), 8.2 of its own sds from the truth; worst rate miss 7.3

@@ -66,7 +66,12 @@ fn phases_and_events_come_out_in_order_without_flicker() {
     // t_m + ln(p/(1−p))/r): 30 % at 12 + ln(3/7)/0.7 = 10.79 h, 95 % at
     // 12 + ln 19/0.7 = 16.21 h. Confirmation takes 3 readings (15 min).
     let at = |p: Phase| changes.iter().find(|c| c.2 == p).unwrap().0;
-    assert!((at(Phase::Deceleration) - 10.79).abs() < 0.5, "{changes:?}");
+    // Deceleration also waits for the capacity to be published (relative sd
+    // below 0.15), which with fast-math comes half an hour after 30 %.
+    assert!(
+        at(Phase::Deceleration) > 10.79 && at(Phase::Deceleration) < 10.79 + 0.75,
+        "{changes:?}"
+    );
     assert!((at(Phase::Stationary) - 16.21).abs() < 0.6, "{changes:?}");
     // Decline of 10 % at 5 %/h: ln(1/0.9)/0.05 = 2.1 h after 22 h.
     assert!((at(Phase::Decline) - 24.1).abs() < 0.8, "{changes:?}");

@@ -67,7 +67,7 @@ pub use estimate::{Estimate, Measured, Outcome, Rejection};
 
 use config::MAX_HELD;
 use fit::{
-    Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse, saturate,
+    Curve, Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse, saturate,
 };
 use history::History;
 
@@ -147,6 +147,8 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     innovations: u32,
     /// Accepted readings since the last full refit.
     since_refit: u8,
+    /// θ with K and r exponentiated, kept in step with `theta`.
+    curve: Curve<T>,
 }
 
 impl<T: Real, const N: usize> Estimator<T, N> {
@@ -178,6 +180,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             innovation_z2: T::ZERO,
             innovations: 0,
             since_refit: 0,
+            curve: Curve::new(&[T::ZERO; 3]),
         }
     }
 
@@ -239,7 +242,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         // With a fit, the model is evaluated once here and shared by the gate,
         // the noise-scale tracker and the recursive step.
         let fitted = self.fitted.then(|| {
-            let (f, g) = model(&self.theta, t);
+            let (f, g, _) = self.curve.eval(t);
             (f, g, self.covariance.quadratic(&g).max(T::ZERO))
         });
         let prediction = match fitted {
@@ -405,6 +408,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if !self.fitted {
             self.try_first_fit();
         } else if self.since_refit.saturating_add(1) >= self.config.refit_every
+            || !self.capacity_published()
             || !self.recursive_step(t, y, model_at_t)
         {
             self.since_refit = 0;
@@ -420,32 +424,22 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// the parameters do not move between readings, so there is no predict
     /// step). The next refit re-linearises over the whole history. Returns
     /// false, leaving the state unchanged, if the reading is surprising
-    /// (innovation beyond 2 sd) or the update is not numerically sound; the
+    /// (innovation beyond 3 sd) or the update is not numerically sound; the
     /// caller then refits at once.
     fn recursive_step(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) -> bool {
         let (f, g) = model_at_t.unwrap_or_else(|| model(&self.theta, t));
         let noise = self.config.noise_sd(f);
         let r = noise * noise * self.noise_scale2;
-        let pg = [
-            self.covariance.get(0, 0) * g[0]
-                + self.covariance.get(0, 1) * g[1]
-                + self.covariance.get(0, 2) * g[2],
-            self.covariance.get(1, 0) * g[0]
-                + self.covariance.get(1, 1) * g[1]
-                + self.covariance.get(1, 2) * g[2],
-            self.covariance.get(2, 0) * g[0]
-                + self.covariance.get(2, 1) * g[1]
-                + self.covariance.get(2, 2) * g[2],
-        ];
+        let pg = self.covariance.times(&g);
         let innovation_var = g[0] * pg[0] + g[1] * pg[1] + g[2] * pg[2] + r;
         if !(innovation_var > T::ZERO) || !innovation_var.is_finite() {
             return false;
         }
         let e = y - f;
-        // A surprising reading (beyond 2 sd) may mean the linearisation is
+        // A surprising reading (beyond 3 sd) may mean the linearisation is
         // off — after a gap, a lag ending, a spike the gate let through:
         // leave it to a full, robust refit.
-        if e * e > T::from_f64(4.0) * innovation_var {
+        if e * e > T::from_f64(9.0) * innovation_var {
             return false;
         }
         let mut step = [
@@ -465,6 +459,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             return false;
         }
         self.theta = theta;
+        self.curve = Curve::new(&theta);
         self.covariance = covariance;
         true
     }
@@ -600,6 +595,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                 &mut z2,
             );
         }
+        self.curve = Curve::new(&self.theta);
         let robust_sse = robust_sse(&mut z2[..n]);
         // Noise scale: from the innovations once there are enough of them,
         // otherwise from the slot residuals (slots − 3 degrees of freedom).
@@ -665,6 +661,23 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         })
     }
 
+    /// Whether the capacity is known well enough to publish: precise enough
+    /// (relative sd below `capacity_max_rel_sd`) and with a rise from the
+    /// starting level that stands out of the noise (ten noise sds) — a
+    /// "plateau" within a few sds of the start is a fit to noise. Until then
+    /// the estimator also refits at every reading, whatever `refit_every`
+    /// says: the recursive step between refits is only trusted once the
+    /// curve is pinned down (before that it is the textbook extended Kalman
+    /// filter that runs away).
+    fn capacity_published(&self) -> bool {
+        let k = self.theta[0].exp();
+        let sd_ln_k = self.covariance.get(0, 0).max(T::ZERO).sqrt();
+        let start = self.first_median.max(self.config.noise_floor);
+        self.fitted
+            && sd_ln_k < self.config.capacity_max_rel_sd
+            && k - start > T::from_f64(10.0) * self.config.noise_sd(k)
+    }
+
     /// The current estimate, or `None` before the readings show growth.
     #[must_use]
     pub fn estimate(&self) -> Option<Estimate<T>> {
@@ -681,12 +694,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             value: k,
             sd: saturate(k * sd_ln_k),
         };
-        // Published only when precise enough and when the rise from the
-        // starting level to it stands out of the noise (ten noise sds): a
-        // "plateau" within a few sds of the start is a fit to noise.
-        let start = self.first_median.max(self.config.noise_floor);
-        let published = sd_ln_k < self.config.capacity_max_rel_sd
-            && k - start > T::from_f64(10.0) * self.config.noise_sd(k);
+        let published = self.capacity_published();
         let inflection = Measured {
             value: theta[2] + self.origin_h,
             sd: cov.get(2, 2).max(T::ZERO).sqrt(),

@@ -71,10 +71,16 @@ pub fn sampler(counts: &[u32]) -> Result<Sampler<ReplayFrontEnd<'_>, VirtualDela
 
 /// The estimator the firmware runs: the library defaults (an OD photometer
 /// with 0.003 OD floor and 1 % proportional noise, no blank: the photometer
-/// already removes it), 32 history slots.
+/// already removes it), 16 history slots. Building with the environment
+/// variable `PLATEAU_REFIT_EVERY=K` (1 to 64) sets `refit_every(K)`, for the
+/// cost measurements in the README.
 #[must_use]
 pub fn estimator() -> Estimator<f32> {
-    Estimator::new(EstimatorConfig::new())
+    let every = option_env!("PLATEAU_REFIT_EVERY")
+        .and_then(|v| v.parse::<u8>().ok())
+        .unwrap_or(1);
+    let config = EstimatorConfig::new();
+    Estimator::new(config.refit_every(every).unwrap_or(config))
 }
 
 /// What happened to one logged reading.
