@@ -102,27 +102,23 @@ impl<T: Real> Sym3<T> {
         out
     }
 
-    /// True when finite and safely positive definite, by Sylvester's
-    /// criterion with a margin: the pivots of the unit-diagonal (Jacobi-scaled)
-    /// matrix, m₂ / (a₀₀ a₁₁) and det / (m₂ a₂₂), must exceed 64 ε. A pivot
-    /// there is 1 − R², the share of a parameter's variance the others do not
-    /// explain; rounding the entries to `T` moves it by a few ε, so a smaller
-    /// one may be negative in exact arithmetic (found by the property tests:
-    /// an f32 covariance with positive minors in f32 was indefinite in f64).
-    /// No square roots, no divisions.
+    /// True when finite and safely positive definite: every pivot of the
+    /// `LDLᵀ` factorisation of the Jacobi-scaled (unit-diagonal) matrix is
+    /// above 64 ε. A pivot there is 1 − R², the share of a parameter's
+    /// variance the others do not explain; rounding the entries to `T` moves
+    /// it by a few ε, so a smaller pivot may be negative in exact arithmetic
+    /// (found by the property tests: an f32 covariance whose pivots were
+    /// positive in f32 was indefinite in f64). Sylvester's criterion on the
+    /// unscaled minors is cheaper but not robust in f32: the 3×3 cofactor
+    /// determinant cancels catastrophically, and the fuzzer found an EKF
+    /// covariance it passed whose determinant is negative in f64.
     pub(crate) fn is_positive_definite(&self) -> bool {
-        let [a00, a01, a02, a11, a12, a22] = self.0;
         let margin = T::EPSILON * T::from_f64(64.0);
-        let m2 = a00 * a11 - a01 * a01;
-        let det = a00 * (a11 * a22 - a12 * a12) - a01 * (a01 * a22 - a12 * a02)
-            + a02 * (a01 * a12 - a11 * a02);
         self.is_finite()
-            && a00 > T::ZERO
-            && a11 > T::ZERO
-            && a22 > T::ZERO
-            && m2 > margin * a00 * a11
-            && det > margin * m2 * a22
-            && det.is_finite()
+            && self
+                .jacobi()
+                .and_then(|d| self.jacobi_scaled(&d).ldl(T::ZERO))
+                .is_some_and(|(_, pivots)| pivots.iter().all(|&p| p > margin))
     }
 
     /// A·v.
