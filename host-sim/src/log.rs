@@ -4,7 +4,9 @@
 //! name (time in hours and the sensor value); other columns are ignored. A row
 //! that cannot be parsed is an error naming its line (1-based; the header is
 //! line 1), unless [`LogOptions::skip_bad_rows`] is set, in which case it is
-//! skipped and reported. Values that parse but make no physical sense (NaN,
+//! skipped and reported. A row with more fields than the header is such a
+//! row (a comma used as the decimal separator would otherwise shift the
+//! columns silently). Values that parse but make no physical sense (NaN,
 //! infinity, negative, time running backwards) are kept: judging them is the
 //! estimator's job.
 //!
@@ -162,11 +164,13 @@ pub fn read_log<R: Read>(mut input: R, options: &LogOptions) -> Result<Log, LogE
     let text = bytes.strip_prefix(b"\xef\xbb\xbf").unwrap_or(&bytes);
     // The csv crate's own line counter drifts with CRLF and blank lines, so
     // line numbers come from byte offsets: the line of the first byte of a
-    // record that is not a line break.
+    // record that is not a line break. A line ends at "\n", "\r\n" or a lone
+    // "\r", as the csv parser ends records (counting only "\n" numbered every
+    // row of a file with lone-CR line ends "line 1"; found by fuzzing).
     let newlines: Vec<usize> = text
         .iter()
         .enumerate()
-        .filter(|(_, b)| **b == b'\n')
+        .filter(|&(i, b)| *b == b'\n' || (*b == b'\r' && text.get(i + 1) != Some(&b'\n')))
         .map(|(i, _)| i)
         .collect();
     let line_of = |pos: Option<&csv::Position>| -> u64 {
@@ -208,6 +212,20 @@ pub fn read_log<R: Read>(mut input: R, options: &LogOptions) -> Result<Log, LogE
         let record = record.map_err(csv_error)?;
         let line = line_of(record.position());
         if record.iter().all(|f| f.trim().is_empty()) {
+            continue;
+        }
+        // More fields than the header names is ambiguous, and typically a
+        // comma used as the decimal separator ("0,123" read as two fields):
+        // picking columns by position would take a wrong number silently.
+        if record.len() > names.len() {
+            bad.push(BadRow {
+                line,
+                reason: format!(
+                    "the row has {} fields but the header has {} (a comma used as decimal separator?)",
+                    record.len(),
+                    names.len()
+                ),
+            });
             continue;
         }
         let field = |idx: usize, name: &str| -> Result<f64, String> {
@@ -442,6 +460,18 @@ mod tests {
             panic!()
         };
         assert_eq!(rows[0].line, 4);
+    }
+
+    #[test]
+    fn lone_cr_line_ends_number_lines_truly() {
+        // Old-style CR-only line ends: rows are lines 2 and 3, the bad one 3.
+        let log = read("time_h,od\r0,0.1\r1,0.2\r").unwrap();
+        let lines: Vec<u64> = log.rows.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [2, 3]);
+        let LogError::BadRows(rows) = read("time_h,od\r0,0.1\r1,x\r").unwrap_err() else {
+            panic!()
+        };
+        assert_eq!(rows[0].line, 3);
     }
 
     #[test]

@@ -144,8 +144,10 @@ impl<T: Real> EstimatorConfig<T> {
     /// How many consecutive gated readings make the estimator stop calling
     /// them spikes (1 to 4, default 4). If they all sit below
     /// `dilution_ratio` × prediction the culture was diluted and the estimator
-    /// restarts from them; otherwise they are accepted, so the gate can never
-    /// starve the estimator.
+    /// restarts from them; otherwise they are accepted if they agree with
+    /// each other, so the gate can never starve the estimator. The same count
+    /// of readings in a row with times behind the latest accepted one is
+    /// taken as a clock reset: the estimator restarts.
     ///
     /// # Errors
     /// Out of 1..=4.

@@ -1,6 +1,6 @@
 //! What the estimator publishes: outcomes of readings and the current estimate.
 
-use super::fit::{Sym3, model};
+use super::fit::{Sym3, model, saturate};
 use crate::{Error, Logistic, Real};
 
 /// A value with its standard deviation, in the units of the field it sits in.
@@ -181,7 +181,7 @@ impl<T: Real> Estimate<T> {
         let k = self.theta[0].exp();
         Measured {
             value: k,
-            sd: k * self.covariance.get(0, 0).sqrt(),
+            sd: saturate(k * self.covariance.get(0, 0).max(T::ZERO).sqrt()),
         }
     }
 
@@ -207,7 +207,7 @@ impl<T: Real> Estimate<T> {
         let (f, g) = model(&self.theta, time_h - self.origin_h);
         Measured {
             value: f + self.blank,
-            sd: self.covariance.quadratic(&g).max(T::ZERO).sqrt(),
+            sd: saturate(self.covariance.sd_along(&g)),
         }
     }
 
@@ -229,7 +229,7 @@ impl<T: Real> Estimate<T> {
         let dt = (l / (k - l)).ln() / r;
         let g = [-k / (r * (k - l)), -dt, T::ONE];
         let value = self.theta[2] + dt + self.origin_h;
-        let sd = self.covariance.quadratic(&g).max(T::ZERO).sqrt();
+        let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
     }
 
@@ -246,7 +246,50 @@ impl<T: Real> Estimate<T> {
         let dt = (fraction / (T::ONE - fraction)).ln() / r;
         let g = [T::ZERO, -dt, T::ONE];
         let value = self.theta[2] + dt + self.origin_h;
-        let sd = self.covariance.quadratic(&g).max(T::ZERO).sqrt();
+        let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// An estimate at the edge of the parameter box (ln K = 80, the clamp)
+    /// with a huge spread: K · sd(ln K) = 5.5e34 · 1e4 overflows f32. Found
+    /// by the `reading_path` fuzzer as capacity sd = +∞.
+    #[test]
+    fn huge_spreads_stay_finite() {
+        let e = Estimate::<f32> {
+            capacity: None,
+            rate_per_h: Measured {
+                value: 1.0,
+                sd: 1.0,
+            },
+            doubling_time_h: Measured {
+                value: 1.0,
+                sd: 1.0,
+            },
+            inflection_time_h: None,
+            lag_h: None,
+            fitted_value: Measured {
+                value: 1.0,
+                sd: 1.0,
+            },
+            latest_time_h: 0.0,
+            noise_scale: 1.0,
+            readings: 10,
+            theta: [80.0, 0.0, 0.0],
+            covariance: Sym3([1e8, 0.0, 0.0, 1.0, 0.0, 1e30]),
+            origin_h: 0.0,
+            blank: 0.0,
+        };
+        let k = e.capacity_unchecked();
+        assert!(
+            k.value.is_finite() && k.sd.is_finite() && k.sd > 1e38,
+            "{k:?}"
+        );
+        let v = e.value_at(1.0);
+        assert!(v.value.is_finite() && v.sd.is_finite(), "{v:?}");
     }
 }

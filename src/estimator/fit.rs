@@ -50,10 +50,41 @@ impl<T: Real> Sym3<T> {
         a[5] += w * g[2] * g[2];
     }
 
-    /// gᵀ·A·g.
+    /// gᵀ·A·g, never below zero. Computed on g / max|gᵢ| and scaled back,
+    /// so a huge g (a fit to absurdly large readings) gives +∞ rather than
+    /// ∞ − ∞ = NaN.
     pub(crate) fn quadratic(&self, g: &[T; 3]) -> T {
-        let ag = self.times(g);
-        g[0] * ag[0] + g[1] * ag[1] + g[2] * ag[2]
+        let (scale, q) = self.scaled_quadratic(g);
+        scale * scale * q
+    }
+
+    /// The standard deviation along g, √(gᵀ·A·g), finite whenever the
+    /// result is: the square root is taken before scaling back, so a huge g
+    /// does not overflow the intermediate square (the fuzzer found a fitted
+    /// value of 1.3e19 OD whose sd came out NaN).
+    pub(crate) fn sd_along(&self, g: &[T; 3]) -> T {
+        let (scale, q) = self.scaled_quadratic(g);
+        scale * q.sqrt()
+    }
+
+    /// (s, q) with s = max|gᵢ| and q = (g/s)ᵀ·A·(g/s) clamped at 0.
+    fn scaled_quadratic(&self, g: &[T; 3]) -> (T, T) {
+        let scale = g[0].abs().max(g[1].abs()).max(g[2].abs());
+        if scale.is_nan() || !scale.is_finite() {
+            // Unknown direction: an infinite spread, which callers filter.
+            return (T::INFINITY, T::ONE);
+        }
+        if !(scale > T::ZERO) {
+            return (T::ZERO, T::ZERO);
+        }
+        let u = [g[0] / scale, g[1] / scale, g[2] / scale];
+        let mut q = T::ZERO;
+        for i in 0..3 {
+            for j in 0..3 {
+                q += u[i] * self.get(i, j) * u[j];
+            }
+        }
+        (scale, q.max(T::ZERO))
     }
 
     pub(crate) fn scaled(&self, s: T) -> Self {
@@ -71,14 +102,31 @@ impl<T: Real> Sym3<T> {
         out
     }
 
-    /// Finite and positive definite, by Sylvester's criterion (all leading
-    /// principal minors positive); no square roots, no divisions.
+    /// True when finite and safely positive definite: every pivot of the
+    /// `LDLᵀ` factorisation of the Jacobi-scaled (unit-diagonal) matrix is
+    /// above 64 ε. A pivot there is 1 − R², the share of a parameter's
+    /// variance the others do not explain; rounding the entries to `T` moves
+    /// it by a few ε, so a smaller pivot may be negative in exact arithmetic
+    /// (found by the property tests: an f32 covariance whose pivots were
+    /// positive in f32 was indefinite in f64). Sylvester's criterion on the
+    /// unscaled minors is cheaper but not robust in f32: the 3×3 cofactor
+    /// determinant cancels catastrophically, and the fuzzer found an EKF
+    /// covariance it passed whose determinant is negative in f64.
+    ///
+    /// Diagonal entries must also stay clear of the subnormal range (above
+    /// 1 / (MAX · ε), about 2.5e−32 for f32): subnormals carry few
+    /// significant bits, and the fuzzer found a covariance of ~1e−40 entries
+    /// (a near-noiseless stream with a 1e−6 noise floor) that passed the
+    /// pivots but is indefinite in f64.
     pub(crate) fn is_positive_definite(&self) -> bool {
-        let [a00, a01, a02, a11, a12, a22] = self.0;
-        let m2 = a00 * a11 - a01 * a01;
-        let det = a00 * (a11 * a22 - a12 * a12) - a01 * (a01 * a22 - a12 * a02)
-            + a02 * (a01 * a12 - a11 * a02);
-        self.is_finite() && a00 > T::ZERO && m2 > T::ZERO && det > T::ZERO
+        let margin = T::EPSILON * T::from_f64(64.0);
+        let tiny = T::ONE / T::MAX / T::EPSILON;
+        self.is_finite()
+            && [self.0[0], self.0[3], self.0[5]].iter().all(|&a| a > tiny)
+            && self
+                .jacobi()
+                .and_then(|d| self.jacobi_scaled(&d).ldl(T::ZERO))
+                .is_some_and(|(_, pivots)| pivots.iter().all(|&p| p > margin))
     }
 
     /// A·v.
@@ -201,6 +249,13 @@ fn ldl_solve<T: Real>((l, d): &([[T; 3]; 3], [T; 3]), b: &[T; 3]) -> [T; 3] {
     x
 }
 
+/// A standard deviation too large for `T` (a fit to absurd readings, with
+/// capacity up to e⁸⁰) reported as `T::MAX`: finite, and plainly "unknown",
+/// where the product `K · sd(ln K)` overflowed to +∞ (found by fuzzing).
+pub(crate) fn saturate<T: Real>(sd: T) -> T {
+    sd.min(T::MAX)
+}
+
 /// The logistic sigmoid 1/(1 + e^(−x)), without overflow for any finite x.
 pub(crate) fn sigmoid<T: Real>(x: T) -> T {
     if x >= T::ZERO {
@@ -232,7 +287,11 @@ impl<T: Real> Curve<T> {
     /// Value above blank, its gradient in θ, and the sigmoid s, at `time_h`
     /// (hours since the origin). One `exp`.
     pub(crate) fn eval(&self, time_h: T) -> (T, [T; 3], T) {
-        let x = self.r * (time_h - self.tm);
+        // Beyond |x| = 100 the sigmoid is saturated to far below f64
+        // precision (e^−100 ≈ 4e−44), so clamping changes no value; it keeps
+        // x finite for a time far from the midpoint (e.g. a reading at
+        // t = 3e38 h), where x·s(1 − s) was ∞·0 = NaN in the gradient.
+        let x = (self.r * (time_h - self.tm)).clamp_to(T::from_f64(-100.0), T::from_f64(100.0));
         let s = sigmoid(x);
         let q = s * (T::ONE - s);
         let f = self.k * s;

@@ -70,7 +70,9 @@ pub use config::EstimatorConfig;
 pub use estimate::{Estimate, Measured, Outcome, Rejection};
 
 use config::MAX_HELD;
-use fit::{Curve, Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse};
+use fit::{
+    Curve, Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse, saturate,
+};
 use history::History;
 
 use crate::Real;
@@ -133,6 +135,8 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     held_len: u8,
     held_sign: i8,
     accepted: u32,
+    /// Readings in a row whose time was behind the latest accepted one.
+    behind: u8,
     /// The last three accepted values above blank (ring), for the gate
     /// before the first fit.
     recent: [T; 3],
@@ -172,6 +176,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             held_len: 0,
             held_sign: 0,
             accepted: 0,
+            behind: 0,
             recent: [T::ZERO; 3],
             first_median: T::ZERO,
             first_median_time_h: T::ZERO,
@@ -197,6 +202,11 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// Feeds one reading: `time_h` in hours on any clock that does not run
     /// backwards, `value` in signal units (OD units for a photometer).
     ///
+    /// A reading earlier than the latest accepted one is rejected
+    /// ([`Rejection::TimeBackwards`]); after `max_consecutive_rejections` of
+    /// them in a row the clock is taken as reset and the estimator restarts
+    /// from the last one ([`Outcome::Restarted`]).
+    ///
     /// Never panics, never allocates, takes bounded time, and leaves no NaN in
     /// the state whatever the input.
     pub fn update(&mut self, time_h: T, value: T) -> Outcome {
@@ -216,8 +226,21 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         let t = time_h - self.origin_h;
         if t < self.latest_h || !t.is_finite() {
-            return Outcome::Rejected(Rejection::TimeBackwards);
+            // A clock that stays behind the latest accepted reading for
+            // `max_consecutive_rejections` readings in a row was reset, or
+            // that latest time was corrupt (one reading stamped 1e30 h locked
+            // the estimator out for good, found by the hardening tests):
+            // restart from this reading, as after a dilution.
+            self.behind = self.behind.saturating_add(1);
+            if self.behind < self.config.max_consecutive_rejections {
+                return Outcome::Rejected(Rejection::TimeBackwards);
+            }
+            *self = Self::new(self.config);
+            self.origin_h = time_h;
+            self.accept(T::ZERO, value - self.config.blank, None);
+            return Outcome::Restarted;
         }
+        self.behind = 0;
         let y = value - self.config.blank;
 
         // With a fit, the model is evaluated once here and shared by the gate,
@@ -300,6 +323,18 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             return Outcome::Rejected(Rejection::Spike);
         }
         let run = usize::from(self.held_len);
+        if !self.held_consistent(run) {
+            // Readings that disagree with each other are not a level the
+            // culture moved to but a faulty sensor: drop the oldest and keep
+            // holding. Without this a burst of garbage (random and huge
+            // values between NaNs) entered the history four at a time and
+            // spoilt the fit for the rest of the culture (found by the
+            // recovery test, tests/recovery.rs).
+            self.held_time_h.copy_within(1..run, 0);
+            self.held_value.copy_within(1..run, 0);
+            self.held_len = u8::try_from(run - 1).unwrap_or(0);
+            return Outcome::Rejected(Rejection::Spike);
+        }
         self.held_len = 0;
         // A dilution drops the signal below both the prediction and the last
         // accepted readings; a long gap or a slow decline does neither.
@@ -325,6 +360,30 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         self.damping = T::from_f64(1e-3);
         Outcome::Accepted
+    }
+
+    /// True when the first `run` held readings agree with each other: every
+    /// one within `gate_sigma` noise sds of their median, after allowing
+    /// growth or decay at up to `max_rate_per_h` over the run's time span.
+    /// A real shift of level (a dilution, faster growth than the model
+    /// expected) passes; a run of random values does not.
+    fn held_consistent(&self, run: usize) -> bool {
+        let mut sorted = self.held_value;
+        let values = &mut sorted[..run];
+        for i in 1..run {
+            let mut j = i;
+            while j > 0 && values[j - 1] > values[j] {
+                values.swap(j - 1, j);
+                j -= 1;
+            }
+        }
+        let median = values[run / 2];
+        let span_h = self.held_time_h[run - 1] - self.held_time_h[0];
+        let growth = (self.config.max_rate_per_h * span_h.max(T::ZERO)).exp();
+        let band = self.config.gate_sigma * self.config.noise_sd(median);
+        values
+            .iter()
+            .all(|&v| v >= median / growth - band && v <= median * growth + band)
     }
 
     /// Takes a reading into the history and updates the fit. `model_at_t`
@@ -467,6 +526,14 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         self.damping = T::from_f64(1e-2);
         self.fitted = true;
         self.refit(16);
+        // No estimate without its uncertainty: if the information matrix
+        // could not be inverted (the readings cannot place the curve yet,
+        // for example when a huge first reading dwarfs the rest), the first
+        // fit did not take and the next reading tries again. Before this
+        // check an estimate was published with an all-zero covariance.
+        if !self.covariance.is_positive_definite() {
+            self.fitted = false;
+        }
     }
 
     fn refit(&mut self, iterations: u8) {
@@ -561,7 +628,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         if let Some(inverse) = normal.info.inverse() {
             let cov = inverse.scaled(cov_scale2);
-            if cov.is_finite() {
+            // Keep the last good covariance rather than store one that f32
+            // rounding left indefinite.
+            if cov.is_positive_definite() {
                 self.covariance = cov;
             }
         }
@@ -593,7 +662,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let var = cov.quadratic(&g) + var_ln_y0 / (r * r);
         (value.is_finite() && var.is_finite()).then(|| Measured {
             value,
-            sd: var.max(T::ZERO).sqrt(),
+            sd: saturate(var.max(T::ZERO).sqrt()),
         })
     }
 
@@ -628,7 +697,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let sd_ln_r = cov.get(1, 1).max(T::ZERO).sqrt();
         let capacity = Measured {
             value: k,
-            sd: k * sd_ln_k,
+            sd: saturate(k * sd_ln_k),
         };
         let published = self.capacity_published();
         let inflection = Measured {
@@ -641,17 +710,17 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             capacity: published.then_some(capacity),
             rate_per_h: Measured {
                 value: r,
-                sd: r * sd_ln_r,
+                sd: saturate(r * sd_ln_r),
             },
             doubling_time_h: Measured {
                 value: T::LN_2 / r,
-                sd: T::LN_2 / r * sd_ln_r,
+                sd: saturate(T::LN_2 / r * sd_ln_r),
             },
             inflection_time_h: published.then_some(inflection),
             lag_h: lag,
             fitted_value: Measured {
                 value: f + self.config.blank,
-                sd: cov.quadratic(&g).max(T::ZERO).sqrt(),
+                sd: saturate(cov.sd_along(&g)),
             },
             latest_time_h: self.latest_h + self.origin_h,
             noise_scale: self.noise_scale2.sqrt(),

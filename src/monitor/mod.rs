@@ -335,6 +335,9 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
 
     fn restart(&mut self, time_h: T) {
         self.push(time_h, Event::Restarted);
+        // The estimator also restarts on a clock reset: gaps count from here.
+        self.last_time_h = time_h;
+        self.has_time = true;
         if self.alert_active {
             self.alert_active = false;
             self.alert_h = None;
