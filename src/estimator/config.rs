@@ -209,7 +209,8 @@ impl<T: Real> EstimatorConfig<T> {
     /// Fastest specific growth (or decay) rate the gate allows between
     /// readings before the first fit, per hour (default 3 per hour, a
     /// doubling every 14 minutes; E. coli in rich medium doubles in about
-    /// 20 minutes, BioNumbers 104331). Raise it for faster organisms.
+    /// 20 minutes, BioNumbers 104331). The fitted rate is also kept below
+    /// four times it. Raise it for faster organisms.
     ///
     /// # Errors
     /// Must be finite and > 0.

@@ -364,12 +364,13 @@ pub(crate) fn model<T: Real>(theta: &[T; 3], time_h: T) -> (T, [T; 3]) {
 }
 
 /// Bounds that keep the parameters physical and the state finite:
-/// ln K within ±80 (any unit a user may pick), r between 1e-4 and 1e3 per hour,
+/// ln K within ±80 (any unit a user may pick), r between 1e-4 per hour and
+/// `exp(ln_rate_max)` (at most 1e3 per hour),
 /// midpoint within ±1e6 h of the origin.
-pub(crate) fn clamp_theta<T: Real>(theta: &mut [T; 3]) {
+pub(crate) fn clamp_theta<T: Real>(theta: &mut [T; 3], ln_rate_max: T) {
     let big = T::from_f64(80.0);
     theta[0] = theta[0].clamp_to(-big, big);
-    theta[1] = theta[1].clamp_to(T::from_f64(-9.2), T::from_f64(6.9));
+    theta[1] = theta[1].clamp_to(T::from_f64(-9.2), ln_rate_max.min(T::from_f64(6.9)));
     let span = T::from_f64(1.0e6);
     theta[2] = theta[2].clamp_to(-span, span);
 }

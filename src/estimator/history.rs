@@ -114,7 +114,10 @@ impl<T: Real, const N: usize> History<T, N> {
             let (y0, y1) = (self.value[i], self.value[i + 1]);
             let sd = noise_sd(y0.max(y1));
             let dy = y1 - y0;
-            let plateau = y0.min(y1) >= T::from_f64(0.98) * top
+            // (Only once the signal stands well out of the noise: a lag
+            // phase near zero is not a plateau.)
+            let plateau = top > T::from_f64(20.0) * noise_sd(T::ZERO)
+                && y0.min(y1) >= T::from_f64(0.98) * top
                 && weight * dy * dy <= T::from_f64(4.0) * sd * sd;
             let cost = if plateau {
                 // Flat: merging loses nothing; the span-average model is

@@ -359,6 +359,12 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             self.accept(ht, hv, None);
         }
         self.damping = T::from_f64(1e-3);
+        // A young fit (no capacity yet) that the culture ran away from is
+        // started again from the data, as the first fit was.
+        if self.fitted && !self.capacity_published() {
+            self.fitted = false;
+            self.try_first_fit();
+        }
         Outcome::Accepted
     }
 
@@ -458,7 +464,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             self.theta[1] + step[1],
             self.theta[2] + step[2],
         ];
-        clamp_theta(&mut theta);
+        clamp_theta(&mut theta, self.ln_rate_max());
         let covariance = self.covariance.minus_outer(&pg, T::ONE / innovation_var);
         if !covariance.is_positive_definite() {
             return false;
@@ -477,6 +483,14 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
     }
 
+    /// Upper bound of the fitted ln r: four times `max_rate_per_h`. Without
+    /// it a first fit to a lag phase and a couple of rising readings can
+    /// settle on a near-step (r in the hundreds per hour), where the
+    /// gradients vanish and no refit can leave.
+    fn ln_rate_max(&self) -> T {
+        (T::from_f64(4.0) * self.config.max_rate_per_h).ln()
+    }
+
     fn try_first_fit(&mut self) {
         let n = self.history.len();
         // Growth seen: the median of the latest three readings over the
@@ -492,14 +506,16 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         {
             return;
         }
-        // Starting values: slope of ln y against t over the positive slots
-        // (count-weighted least squares), capacity 4 × the largest reading.
+        // Starting values: slope of ln y against t over the slots clearly
+        // above the noise (three noise sds of the slot mean; a logarithm of
+        // noise around zero would make any slope), count-weighted least
+        // squares, at most `max_rate_per_h`; capacity 4 × the largest reading.
         let (mut sw, mut st, mut sy, mut stt, mut sty) =
             (T::ZERO, T::ZERO, T::ZERO, T::ZERO, T::ZERO);
         for i in 0..n {
             let (t, y, c) = self.history.slot(i);
-            if y > T::ZERO {
-                let w = T::from_u32(u32::from(c));
+            let w = T::from_u32(u32::from(c));
+            if y > T::from_f64(3.0) * self.config.noise_sd(y) / w.sqrt() {
                 let ly = y.ln();
                 sw += w;
                 st += w * t;
@@ -517,12 +533,14 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if !(rate > T::from_f64(0.05)) {
             rate = T::from_f64(0.05);
         }
+        rate = rate.min(self.config.max_rate_per_h);
         let k = T::from_f64(4.0) * self.high;
         let (t_last, y_last, _) = self.history.slot(n - 1);
         let y_last = y_last.max(self.low);
         let midpoint = t_last + (k / y_last - T::ONE).ln() / rate;
         self.theta = [k.ln(), rate.ln(), midpoint];
-        clamp_theta(&mut self.theta);
+        let ln_rate_max = self.ln_rate_max();
+        clamp_theta(&mut self.theta, ln_rate_max);
         self.damping = T::from_f64(1e-2);
         self.fitted = true;
         self.refit(16);
@@ -558,6 +576,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         // `iterations` steps, then up to EXTRA_ITERATIONS more while a step
         // still cuts the objective by over 1 % (after a long gap or a run of
         // surprising readings): bounded, and cheap once converged.
+        let ln_rate_max = self.ln_rate_max();
         let mut moving = true;
         for iteration in 0..iterations.saturating_add(EXTRA_ITERATIONS) {
             if iteration >= iterations && !moving {
@@ -576,7 +595,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
                     self.theta[1] + step[1],
                     self.theta[2] + step[2],
                 ];
-                clamp_theta(&mut trial);
+                clamp_theta(&mut trial, ln_rate_max);
                 let value = objective(&self.history, &trial, &prior, &weights);
                 if value <= current {
                     moving = current - value > T::from_f64(0.01) * current;
