@@ -78,13 +78,11 @@ impl<T: Real> Sym3<T> {
             return (T::ZERO, T::ZERO);
         }
         let u = [g[0] / scale, g[1] / scale, g[2] / scale];
-        let mut q = T::ZERO;
-        for i in 0..3 {
-            for j in 0..3 {
-                q += u[i] * self.get(i, j) * u[j];
-            }
-        }
-        (scale, q.max(T::ZERO))
+        let au = self.times(&u);
+        (
+            scale,
+            (u[0] * au[0] + u[1] * au[1] + u[2] * au[2]).max(T::ZERO),
+        )
     }
 
     pub(crate) fn scaled(&self, s: T) -> Self {
@@ -123,10 +121,13 @@ impl<T: Real> Sym3<T> {
         let tiny = T::ONE / T::MAX / T::EPSILON;
         self.is_finite()
             && [self.0[0], self.0[3], self.0[5]].iter().all(|&a| a > tiny)
-            && self
-                .jacobi()
-                .and_then(|d| self.jacobi_scaled(&d).ldl(T::ZERO))
-                .is_some_and(|(_, pivots)| pivots.iter().all(|&p| p > margin))
+            && self.ldl(T::ZERO).is_some_and(|(_, pivots)| {
+                // The Jacobi-scaled matrix's pivots are these divided by the
+                // diagonal: the same margin, without three square roots.
+                pivots[0] > margin * self.0[0]
+                    && pivots[1] > margin * self.0[3]
+                    && pivots[2] > margin * self.0[5]
+            })
     }
 
     /// A·v.

@@ -103,47 +103,68 @@ impl<T: Real, const N: usize> History<T, N> {
     /// older pair, so rounding cannot make f32 and f64 summarise the same
     /// run differently.
     fn merge_cheapest_pair(&mut self, noise_sd: impl Fn(T) -> T) {
+        let best = self
+            .oldest_plateau_pair(&noise_sd)
+            .unwrap_or_else(|| self.tightest_pair());
+        self.merge_pair(best);
+    }
+
+    /// The oldest adjacent pair on the plateau, if any (the first such pair
+    /// wins, so the scan stops there). Only once the signal stands well out
+    /// of the noise: a lag phase near zero is not a plateau.
+    fn oldest_plateau_pair(&self, noise_sd: &impl Fn(T) -> T) -> Option<usize> {
         let len = self.len();
         let top = self.value[..len].iter().fold(T::ZERO, |m, &v| m.max(v));
-        let mut best = 0;
-        let mut best_cost = T::INFINITY;
-        for i in 0..len - 1 {
+        if !(top > T::from_f64(20.0) * noise_sd(T::ZERO)) {
+            return None;
+        }
+        let floor = T::from_f64(0.98) * top;
+        (0..len - 1).find(|&i| {
+            let (y0, y1) = (self.value[i], self.value[i + 1]);
+            if !(y0.min(y1) >= floor) {
+                return false;
+            }
             let c0 = T::from_u32(u32::from(self.count[i]));
             let c1 = T::from_u32(u32::from(self.count[i + 1]));
-            let weight = c0 * c1 / (c0 + c1);
-            let (y0, y1) = (self.value[i], self.value[i + 1]);
             let sd = noise_sd(y0.max(y1));
             let dy = y1 - y0;
-            // (Only once the signal stands well out of the noise: a lag
-            // phase near zero is not a plateau.)
-            let plateau = top > T::from_f64(20.0) * noise_sd(T::ZERO)
-                && y0.min(y1) >= T::from_f64(0.98) * top
-                && weight * dy * dy <= T::from_f64(4.0) * sd * sd;
-            let cost = if plateau {
-                // Flat: merging loses nothing; the span-average model is
-                // exact there. Oldest first.
-                T::ZERO
+            c0 * c1 / (c0 + c1) * dy * dy <= T::from_f64(4.0) * sd * sd
+        })
+    }
+
+    /// The adjacent pair tightest in time: the smallest second moment in time
+    /// of the union, each slot taken as c evenly spaced readings over its
+    /// span (variance w²(c+1)/(12(c−1))) plus the parallel-axis term between
+    /// their mean times. Near-ties (within 0.01 %) go to the older pair, so
+    /// rounding cannot make f32 and f64 summarise the same run differently.
+    fn tightest_pair(&self) -> usize {
+        let spread = |w: T, c: T| {
+            if c > T::ONE {
+                w * w * (c + T::ONE) / (T::from_f64(12.0) * (c - T::ONE))
             } else {
-                // Second moment in time of the union: each slot as c evenly
-                // spaced readings over its span (variance w²(c+1)/(12(c−1))),
-                // plus the parallel-axis term between their centres.
-                let spread = |w: T, c: T| {
-                    if c > T::ONE {
-                        w * w * (c + T::ONE) / (T::from_f64(12.0) * (c - T::ONE))
-                    } else {
-                        T::ZERO
-                    }
-                };
-                let (a0, b0) = (self.first_h[i], self.last_h[i]);
-                let (a1, b1) = (self.first_h[i + 1], self.last_h[i + 1]);
-                let gap = (a1 + b1 - a0 - b0) * T::HALF;
-                c0 * spread(b0 - a0, c0) + c1 * spread(b1 - a1, c1) + weight * gap * gap
-            };
-            if cost < best_cost * T::from_f64(0.9999) || (plateau && best_cost > T::ZERO) {
+                T::ZERO
+            }
+        };
+        let mut best = 0;
+        let mut best_cost = T::INFINITY;
+        for i in 0..self.len() - 1 {
+            let c0 = T::from_u32(u32::from(self.count[i]));
+            let c1 = T::from_u32(u32::from(self.count[i + 1]));
+            let gap = self.mean_h[i + 1] - self.mean_h[i];
+            let cost = c0 * spread(self.last_h[i] - self.first_h[i], c0)
+                + c1 * spread(self.last_h[i + 1] - self.first_h[i + 1], c1)
+                + c0 * c1 / (c0 + c1) * gap * gap;
+            if cost < best_cost * T::from_f64(0.9999) {
                 best_cost = cost;
                 best = i;
             }
         }
+        best
+    }
+
+    /// Merges slot `best + 1` into slot `best` and closes the gap.
+    fn merge_pair(&mut self, best: usize) {
+        let len = self.len();
         let (mean, value, count, last) = (
             self.mean_h[best + 1],
             self.value[best + 1],
