@@ -694,12 +694,17 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// curve is pinned down (before that it is the textbook extended Kalman
     /// filter that runs away).
     fn capacity_published(&self) -> bool {
-        let k = self.theta[0].exp();
-        let sd_ln_k = self.covariance.get(0, 0).max(T::ZERO).sqrt();
+        if !self.fitted {
+            return false;
+        }
+        // Compared as variances: no square root on the reading path.
+        let limit = self.config.capacity_max_rel_sd;
+        if !(self.covariance.get(0, 0) < limit * limit) {
+            return false;
+        }
+        let k = self.curve.k;
         let start = self.first_median.max(self.config.noise_floor);
-        self.fitted
-            && sd_ln_k < self.config.capacity_max_rel_sd
-            && k - start > T::from_f64(10.0) * self.config.noise_sd(k)
+        k - start > T::from_f64(10.0) * self.config.noise_sd(k)
     }
 
     /// The current estimate, or `None` before the readings show growth.
