@@ -396,6 +396,23 @@ mod f32_backend {
     }
 }
 
+/// The median of three values.
+pub(crate) fn median3<T: Real>([a, b, c]: [T; 3]) -> T {
+    a.max(b).min(a.min(b).max(c))
+}
+
+/// Sorts a short slice in place, ascending: insertion sort, at most n²/2
+/// compares on the caller's (stack) slice, no allocation.
+pub(crate) fn sort_small<T: Real>(values: &mut [T]) {
+    for i in 1..values.len() {
+        let mut j = i;
+        while j > 0 && values[j - 1] > values[j] {
+            values.swap(j - 1, j);
+            j -= 1;
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::Real;

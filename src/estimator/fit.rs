@@ -14,6 +14,7 @@
 use super::config::EstimatorConfig;
 use super::history::History;
 use crate::Real;
+use crate::math::sort_small;
 
 /// A symmetric 3×3 matrix, stored as its upper triangle
 /// `[a00, a01, a02, a11, a12, a22]`.
@@ -459,14 +460,7 @@ pub(crate) fn robust_sse<T: Real>(z2: &mut [T]) -> T {
     if n == 0 {
         return T::ZERO;
     }
-    // Insertion sort: at most N²/2 compares on a stack slice, no allocation.
-    for i in 1..n {
-        let mut j = i;
-        while j > 0 && z2[j - 1] > z2[j] {
-            z2.swap(j - 1, j);
-            j -= 1;
-        }
-    }
+    sort_small(z2);
     let median = if n % 2 == 1 {
         z2[n / 2]
     } else {

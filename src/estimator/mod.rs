@@ -76,6 +76,7 @@ use fit::{
 use history::History;
 
 use crate::Real;
+use crate::math::{median3, sort_small};
 
 /// Most extra Levenberg–Marquardt iterations per reading while the fit is
 /// still moving (see `refit`).
@@ -376,13 +377,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     fn held_consistent(&self, run: usize) -> bool {
         let mut sorted = self.held_value;
         let values = &mut sorted[..run];
-        for i in 1..run {
-            let mut j = i;
-            while j > 0 && values[j - 1] > values[j] {
-                values.swap(j - 1, j);
-                j -= 1;
-            }
-        }
+        sort_small(values);
         let median = values[run / 2];
         let span_h = self.held_time_h[run - 1] - self.held_time_h[0];
         let growth = (self.config.max_rate_per_h * span_h.max(T::ZERO)).exp();
@@ -564,15 +559,20 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         // earlier failed trials would otherwise shrink every step below what
         // the objective can resolve, and the fit would freeze.
         self.damping = self.damping.min(T::ONE);
-        let mut normal = accumulate(
-            &self.history,
-            &self.config,
-            &self.theta,
-            &prior,
-            scale,
-            &mut weights,
-            &mut z2,
-        );
+        // One pass of the normal equations at θ (captures only the history
+        // and the config, so θ and the damping stay free to change).
+        let normal_at = |theta: &[T; 3], weights: &mut [T; N], z2: &mut [T; N]| {
+            accumulate(
+                &self.history,
+                &self.config,
+                theta,
+                &prior,
+                scale,
+                weights,
+                z2,
+            )
+        };
+        let mut normal = normal_at(&self.theta, &mut weights, &mut z2);
         // `iterations` steps, then up to EXTRA_ITERATIONS more while a step
         // still cuts the objective by over 1 % (after a long gap or a run of
         // surprising readings): bounded, and cheap once converged.
@@ -609,42 +609,27 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             if !improved {
                 break;
             }
-            normal = accumulate(
-                &self.history,
-                &self.config,
-                &self.theta,
-                &prior,
-                scale,
-                &mut weights,
-                &mut z2,
-            );
+            normal = normal_at(&self.theta, &mut weights, &mut z2);
         }
         self.curve = Curve::new(&self.theta);
-        let robust_sse = robust_sse(&mut z2[..n]);
+        // The slots' own residual scale (robust, over slots − 3 degrees of
+        // freedom), when there are enough slots.
+        let slot_s2 = (n > 5)
+            .then(|| robust_sse(&mut z2[..n]) / T::from_u32(u32::try_from(n - 3).unwrap_or(1)))
+            .filter(|s2| s2.is_finite());
         // Noise scale: from the innovations once there are enough of them,
-        // otherwise from the slot residuals (slots − 3 degrees of freedom).
+        // otherwise from the slot residuals.
         if self.innovations >= MIN_INNOVATIONS && self.innovation_z2 > T::ZERO {
             self.noise_scale2 = self.innovation_z2;
-        } else if n > 5 {
-            let dof = T::from_u32(u32::try_from(n - 3).unwrap_or(1));
-            let s2 = robust_sse / dof;
-            if s2.is_finite() && s2 > T::ZERO {
-                self.noise_scale2 = s2;
-            }
+        } else if let Some(s2) = slot_s2.filter(|&s2| s2 > T::ZERO) {
+            self.noise_scale2 = s2;
         }
         // The covariance takes the larger of the noise scale and the slots'
         // own residual scale. With the right model they agree; when the curve
         // is not quite a logistic (a Gompertz-like asymmetry, a lag), the
         // merged slots average the noise away but keep the systematic misfit,
         // and their residual scale grows: the intervals widen honestly.
-        let mut cov_scale2 = self.noise_scale2;
-        if n > 5 {
-            let dof = T::from_u32(u32::try_from(n - 3).unwrap_or(1));
-            let slot_s2 = robust_sse / dof;
-            if slot_s2.is_finite() {
-                cov_scale2 = cov_scale2.max(slot_s2);
-            }
-        }
+        let cov_scale2 = slot_s2.map_or(self.noise_scale2, |s2| self.noise_scale2.max(s2));
         if let Some(inverse) = normal.info.inverse() {
             let cov = inverse.scaled(cov_scale2);
             // Keep the last good covariance rather than store one that f32
@@ -755,9 +740,4 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             blank: self.config.blank,
         })
     }
-}
-
-/// The median of three values.
-fn median3<T: Real>([a, b, c]: [T; 3]) -> T {
-    a.max(b).min(a.min(b).max(c))
 }

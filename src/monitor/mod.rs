@@ -38,6 +38,7 @@ pub use config::MonitorConfig;
 pub use event::{Event, Fault, Faults, Phase, Target, TimedEvent};
 pub use watch::Watch;
 
+use crate::math::median3;
 use crate::{Error, Estimate, Measured, Outcome, Real, Rejection};
 use heapless::{Deque, Vec};
 
@@ -365,10 +366,7 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
     }
 
     fn median_recent(&self) -> Option<T> {
-        (self.recent_count >= 3).then(|| {
-            let [a, b, c] = self.recent;
-            a.max(b).min(a.min(b).max(c))
-        })
+        (self.recent_count >= 3).then(|| median3(self.recent))
     }
 
     fn candidate(&self, estimate: Option<&Estimate<T>>) -> Phase {
