@@ -7,7 +7,7 @@
 //! truth is the closed form, so the true 90 % crossing is
 //! t_m + ln 9 / r and the true inflection t_m (FACTS.md logistic identities).
 
-use plateau::{EstimatorConfig, Event, MonitorConfig, Phase, Watch};
+use plateau::{EstimatorConfig, Event, GrowthCurve, Logistic, MonitorConfig, Phase, Watch};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -39,16 +39,26 @@ impl Culture {
         }
     }
 
+    /// The culture's closed-form curve.
+    #[must_use]
+    pub fn curve(&self) -> Logistic<f64> {
+        Logistic::from_midpoint(self.capacity_od, self.rate_per_h, self.midpoint_h)
+            .expect("drawn parameters are positive and finite")
+    }
+
     /// True OD at `t_h` hours.
     #[must_use]
     pub fn od(&self, t_h: f64) -> f64 {
-        self.capacity_od / (1.0 + (-self.rate_per_h * (t_h - self.midpoint_h)).exp())
+        self.curve().value(t_h)
     }
 
-    /// Time at which the culture reaches the fraction `p` of capacity, hours.
+    /// Time at which the culture reaches the fraction `p` (0 < p < 1) of
+    /// capacity, hours.
     #[must_use]
     pub fn time_to_fraction(&self, p: f64) -> f64 {
-        self.midpoint_h + (p / (1.0 - p)).ln() / self.rate_per_h
+        self.curve()
+            .time_to_reach(p * self.capacity_od)
+            .expect("a fraction strictly between 0 and 1 is reached")
     }
 
     /// Readings (time h, OD) every 5 minutes from 0 to `end_h`, with noise,
@@ -56,6 +66,7 @@ impl Culture {
     #[must_use]
     pub fn readings(&self, end_h: f64, bubbles: bool) -> Vec<(f64, f64)> {
         let mut rng = ChaCha8Rng::seed_from_u64(self.seed);
+        let curve = self.curve();
         let mut out = Vec::new();
         let mut i = 0_u32;
         loop {
@@ -65,7 +76,7 @@ impl Culture {
                 return out;
             }
             let t = nominal + rng.random_range(-1.0..1.0) / 60.0;
-            let truth = self.od(t);
+            let truth = curve.value(t);
             let z: f64 = StandardNormal.sample(&mut rng);
             let mut y = truth + (0.003 + 0.01 * truth) * z;
             let bubble: f64 = rng.random();
@@ -301,8 +312,10 @@ mod tests {
         let b = Culture::draw(3, 5);
         assert_eq!(a.readings(10.0, true), b.readings(10.0, true));
         assert!((0.8..3.0).contains(&a.capacity_od));
-        // The closed form's inverse (FACTS.md): value at t(p) is p·K.
+        // The logistic identity (FACTS.md): the time to a fraction p of K is
+        // t_m + ln(p/(1−p))/r, and the value there is p·K.
         let t = a.time_to_fraction(0.9);
+        assert!((t - (a.midpoint_h + 9.0_f64.ln() / a.rate_per_h)).abs() < 1e-9);
         assert!((a.od(t) / a.capacity_od - 0.9).abs() < 1e-12);
     }
 }
