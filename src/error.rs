@@ -37,6 +37,14 @@ pub enum Error {
         /// Name of the offending parameter.
         parameter: &'static str,
     },
+    /// Two settings contradict each other (for example an alert fraction at
+    /// or below its re-arm fraction).
+    Conflict {
+        /// The setting being set.
+        parameter: &'static str,
+        /// The setting it conflicts with.
+        other: &'static str,
+    },
     /// The curve never reaches the requested level (it lies at or beyond an
     /// asymptote).
     LevelNotReached,
@@ -52,7 +60,8 @@ impl Error {
         match self {
             Self::NotFinite { parameter }
             | Self::NotPositive { parameter }
-            | Self::OutOfRange { parameter } => Some(parameter),
+            | Self::OutOfRange { parameter }
+            | Self::Conflict { parameter, .. } => Some(parameter),
             Self::LevelNotReached | Self::NoConvergence => None,
         }
     }
@@ -64,6 +73,9 @@ impl fmt::Display for Error {
             Self::NotFinite { parameter } => write!(f, "{parameter} must be finite"),
             Self::NotPositive { parameter } => write!(f, "{parameter} must be positive"),
             Self::OutOfRange { parameter } => write!(f, "{parameter} is out of range"),
+            Self::Conflict { parameter, other } => {
+                write!(f, "{parameter} conflicts with {other}")
+            }
             Self::LevelNotReached => f.write_str("the curve never reaches that level"),
             Self::NoConvergence => f.write_str("the numerical search did not converge"),
         }

@@ -350,7 +350,7 @@ impl<T: Real> EstimatorConfig<T> {
 
 /// Default spread of an unknown blank, signal units (OD units): see
 /// [`EstimatorConfig::unknown_blank_sd`].
-pub const DEFAULT_UNKNOWN_BLANK_SD: f64 = 0.05;
+pub const DEFAULT_UNKNOWN_BLANK_SD: f64 = 0.1;
 
 /// A reading's standard deviation: `floor + fraction × y`, signal units.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -188,6 +188,9 @@ pub struct Estimate<T: Real = f32, const P: usize = 5, F: OnlineFamily<T, P> = L
     pub(crate) blank_sd: T,
     pub(crate) blank_source: BlankSource,
     pub(crate) curve: F,
+    /// The shadow fit's curve and the blank height it assumes, when the
+    /// blank is unknown (see [`BlankSource::Unknown`]).
+    pub(crate) shadow: Option<(F, T)>,
 }
 
 impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
@@ -229,6 +232,15 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
         }
     }
 
+    /// When the blank is unknown: the curve fitted to the readings lowered
+    /// by the blank's plausible height, and that height (signal units). How
+    /// far its quantities lie from the fit's is part of their standard
+    /// deviations.
+    #[must_use]
+    pub fn shadow_curve(&self) -> Option<(F, T)> {
+        self.shadow
+    }
+
     /// Where the blank comes from.
     #[must_use]
     pub fn blank_source(&self) -> BlankSource {
@@ -263,6 +275,9 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
     ///
     /// # Examples
     /// See [`Estimator`](crate::Estimator).
+    ///
+    /// (With an unknown blank the shadow fit follows the same readings, so
+    /// it adds nothing here.)
     #[must_use]
     pub fn value_at(&self, time_h: T) -> Measured<T> {
         let (f, g, _) = self.curve.eval(time_h - self.origin_h);
@@ -281,7 +296,13 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
     /// gives ∂t/∂θ = −(∂f/∂θ) / (∂f/∂t), with ∂f/∂t = f · d ln f/dt.
     #[must_use]
     pub fn time_to_reach(&self, level: T) -> Option<Measured<T>> {
-        self.time_to(level - self.blank, false)
+        let above = level - self.blank;
+        let main = self.time_to(above, false)?;
+        let spread = self.shadow.and_then(|(c, height)| {
+            c.time_to_level(above - height)
+                .map(|t| t + self.origin_h - main.value)
+        });
+        Some(widen_by(main, spread))
     }
 
     /// Time (hours, caller's clock) at which the fitted curve reaches the
@@ -294,7 +315,12 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
         if !(fraction > T::ZERO && fraction < T::ONE) {
             return None;
         }
-        self.time_to(fraction * self.curve.capacity(), true)
+        let main = self.time_to(fraction * self.curve.capacity(), true)?;
+        let spread = self.shadow.and_then(|(c, _)| {
+            c.time_to_level(fraction * c.capacity())
+                .map(|t| t + self.origin_h - main.value)
+        });
+        Some(widen_by(main, spread))
     }
 
     fn time_to(&self, level: T, moves_with_capacity: bool) -> Option<Measured<T>> {
@@ -313,6 +339,18 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
         let value = t + self.origin_h;
         let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
+    }
+}
+
+/// `m` with `spread` (the shadow fit's difference, when the blank is
+/// unknown) added in quadrature to its sd; ignored when not finite.
+pub(crate) fn widen_by<T: Real>(m: Measured<T>, spread: Option<T>) -> Measured<T> {
+    match spread {
+        Some(d) if d.is_finite() => Measured {
+            value: m.value,
+            sd: saturate((m.sd * m.sd + d * d).sqrt()),
+        },
+        _ => m,
     }
 }
 
@@ -354,6 +392,7 @@ mod tests {
             blank_sd: 0.0,
             blank_source: BlankSource::Configured,
             curve: crate::Logistic::from_theta(&[80.0, 0.0, 0.0]),
+            shadow: None,
         };
         let k = e.capacity_unchecked();
         assert!(

@@ -71,6 +71,8 @@ mod noise;
 pub use config::{DEFAULT_UNKNOWN_BLANK_SD, EstimatorConfig};
 pub use estimate::{BlankSource, Estimate, Measured, Outcome, Rejection};
 
+use estimate::widen_by as widen;
+
 use config::{MAX_HELD, NoiseModel};
 use fit::{Prior, Sym, accumulate, objective, panels, robust_sse, saturate};
 use history::History;
@@ -141,9 +143,8 @@ pub struct Estimator<
     high: T,
     theta: [T; P],
     covariance: Sym<T, P>,
-    /// How θ moves with the blank's error: per signal unit of a measured
-    /// blank (`info⁻¹ · JᵀW·1`), or the shadow fit's secant for an unknown
-    /// one (see `shadow_fit`).
+    /// How θ moves per signal unit of a measured blank's error
+    /// (`info⁻¹ · JᵀW·1`).
     blank_shift: [T; P],
     /// The shadow fit's θ (unknown blank), and whether it has one.
     shadow_theta: [T; P],
@@ -795,16 +796,17 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
     }
 
     /// The shadow fit, when the blank is unknown: the same family fitted to
-    /// the readings lowered by the blank's plausible height, the smaller of
-    /// `unknown_blank_sd` and half the starting level (a blank cannot lie
-    /// above the readings). How far it lands from the fit — the secant, not
-    /// the tangent, because a blank of the size of the starting level
-    /// changes the early curve far beyond first order — is the spread the
-    /// missing blank leaves in θ. Warm-started from its last solution.
+    /// the readings lowered by the blank's plausible height (see
+    /// `blank_height`). How far each published quantity of the shadow curve
+    /// lands from the fit's — the secant, not the tangent, because a blank
+    /// of the size of the starting level changes the early curve far beyond
+    /// first order, and the lag and shape it moves are not linear in it —
+    /// is taken as one more standard deviation of that quantity (see
+    /// [`Estimate`]). Warm-started from its last solution.
     fn shadow_fit(&mut self, iterations: u8) {
         let height = self.blank_height();
         if self.blank_source != BlankSource::Unknown || !(height > T::ZERO) {
-            self.blank_shift = [T::ZERO; P];
+            self.shadow_ready = false;
             return;
         }
         let (start, its) = if self.shadow_ready {
@@ -816,14 +818,12 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         if theta.iter().all(|v| v.is_finite()) {
             self.shadow_theta = theta;
             self.shadow_ready = true;
-            for i in 0..P {
-                self.blank_shift[i] = theta[i] - self.theta[i];
-            }
         }
     }
 
     /// The blank's plausible height when it is unknown (signal units):
-    /// `unknown_blank_sd`, but at most half the starting level.
+    /// `unknown_blank_sd`, but at most three quarters of the starting level
+    /// (a blank cannot lie above the readings).
     fn blank_height(&self) -> T {
         let start = if self.accepted >= 3 {
             self.first_median
@@ -831,22 +831,21 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
             self.low
         };
         if start.is_finite() && start > T::ZERO {
-            self.blank_sd.min(T::HALF * start)
+            self.blank_sd.min(T::from_f64(0.75) * start)
         } else {
             T::ZERO
         }
     }
 
-    /// The covariance of θ including the blank's uncertainty, P + d dᵀ: for
-    /// a measured blank d = `blank_sd` × the fit's shift per signal unit of
-    /// blank (first order), for an unknown one the shadow fit's secant over
-    /// the blank's plausible height (taken as one sd).
+    /// The covariance of θ including a measured blank's uncertainty,
+    /// P + `blank_sd`² d dᵀ, d the fit's shift per signal unit of blank
+    /// (first order: the blank phase's standard error is small). An unknown
+    /// blank is carried by the shadow fit instead.
     fn total_covariance(&self) -> Sym<T, P> {
-        let weight = match self.blank_source {
-            BlankSource::Configured => return self.covariance,
-            BlankSource::Measured => self.blank_sd * self.blank_sd,
-            BlankSource::Unknown => T::ONE,
-        };
+        if self.blank_source != BlankSource::Measured {
+            return self.covariance;
+        }
+        let weight = self.blank_sd * self.blank_sd;
         let total = self.covariance.plus_outer(&self.blank_shift, weight);
         if total.is_finite() {
             total
@@ -886,6 +885,9 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         let theta = self.theta;
         let cov = self.total_covariance();
         let curve = self.curve;
+        let shadow = self
+            .shadow_ready
+            .then(|| (F::from_theta(&self.shadow_theta), self.blank_height()));
         let measured = |value: T, g: &[T; P]| Measured {
             value,
             sd: saturate(cov.sd_along(g)),
@@ -893,26 +895,63 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         let k = curve.capacity();
         let mut g_k = [T::ZERO; P];
         g_k[0] = k;
-        let capacity = measured(k, &g_k);
+        let capacity = widen(
+            measured(k, &g_k),
+            shadow.map(|(c, _)| c.capacity() - k),
+        );
         let published = self.capacity_published();
         let (rate, g_rate, _) = curve.max_specific_rate(&theta);
         let rate = if rate > T::ZERO { rate } else { T::EPSILON };
-        let rate_per_h = measured(rate, &g_rate);
+        let statistical = widen(
+            measured(rate, &g_rate),
+            shadow.map(|(c, _)| c.max_specific_rate(&self.shadow_theta).0 - rate),
+        );
+        let form = T::from_f64(F::RATE_FORM_REL_SD) * rate;
+        let rate_per_h = Measured {
+            value: rate,
+            sd: saturate((statistical.sd * statistical.sd + form * form).sqrt()),
+        };
         let doubling = T::LN_2 / rate;
         let doubling_time_h = Measured {
             value: doubling,
             sd: saturate(doubling / rate * rate_per_h.sd),
         };
         let (t_infl, g_infl) = curve.inflection(&theta);
-        let inflection = measured(t_infl + self.origin_h, &g_infl);
+        let inflection = widen(
+            measured(t_infl + self.origin_h, &g_infl),
+            shadow.map(|(c, _)| c.inflection(&self.shadow_theta).0 - t_infl),
+        );
         let lag = curve
             .tangent_lag(&theta)
-            .map(|(value, g)| measured(value, &g))
+            .map(|(value, g)| {
+                let spread = shadow.and_then(|(c, _)| {
+                    c.tangent_lag(&self.shadow_theta).map(|(l, _)| l - value)
+                });
+                let lag = widen(measured(value, &g), spread);
+                // One sd along the lag parameter, re-solved (see
+                // `OnlineFamily::LAG_INDEX`), when that says more.
+                let along = F::LAG_INDEX.and_then(|i| {
+                    let mut moved = theta;
+                    moved[i] += cov.get(i, i).max(T::ZERO).sqrt();
+                    F::from_theta(&moved)
+                        .tangent_lag(&moved)
+                        .map(|(l, _)| (l - value).abs())
+                        .filter(|d| d.is_finite())
+                });
+                match along {
+                    Some(d) if d > lag.sd => Measured {
+                        value: lag.value,
+                        sd: d,
+                    },
+                    _ => lag,
+                }
+            })
             .filter(|m| published && m.value.is_finite());
         let shape = curve.shape().map(|(index, nu)| {
             let mut g = [T::ZERO; P];
             g[index] = nu;
-            measured(nu, &g)
+            let spread = shadow.and_then(|(c, _)| c.shape().map(|(_, s)| s - nu));
+            widen(measured(nu, &g), spread)
         });
         let (f, g, _) = curve.eval(self.latest_h);
         Some(Estimate {
@@ -938,6 +977,7 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
             blank_sd: self.blank_sd,
             blank_source: self.blank_source,
             curve,
+            shadow,
         })
     }
 }

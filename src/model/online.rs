@@ -25,6 +25,18 @@ pub trait OnlineFamily<T: Real, const P: usize>: Copy + core::fmt::Debug {
     /// A short lower-case name for logs and outputs.
     const NAME: &'static str;
 
+    /// Relative standard deviation added (in quadrature) to the published
+    /// maximum specific growth rate for the family's own form: how far its
+    /// μmax can sit from a culture of another published shape that it
+    /// fits closely but not exactly. 0 for a family taken as exact.
+    const RATE_FORM_REL_SD: f64 = 0.0;
+
+    /// The index in θ of the parameter that sets the lag, for families
+    /// with one. The estimator re-evaluates the lag one sd along it: at a
+    /// fit with no lag the tangent lag sits on its boundary (0), where its
+    /// first-order sd is 0 even though the data may allow a short lag.
+    const LAG_INDEX: Option<usize> = None;
+
     /// The curve at θ. θ has passed [`clamp`](Self::clamp).
     fn from_theta(theta: &[T; P]) -> Self;
 

@@ -25,6 +25,8 @@ pub struct MonitorConfig<T = f32> {
     pub(crate) alert_fraction: T,
     pub(crate) alert_lead_h: T,
     pub(crate) alert_max_rel_sd: T,
+    pub(crate) alert_sds: T,
+    pub(crate) alert_max_eta_sd_h: T,
     pub(crate) rearm_fraction: T,
     pub(crate) sensor_min: T,
     pub(crate) sensor_max: T,
@@ -35,6 +37,13 @@ pub struct MonitorConfig<T = f32> {
     pub(crate) stuck_readings: u8,
     pub(crate) confirm_readings: u8,
 }
+
+/// Default of [`MonitorConfig::alert_sds`]: the alert fires when the
+/// forecast time minus one standard deviation is within the lead time.
+pub const DEFAULT_ALERT_SDS: f64 = 1.0;
+
+/// Default of [`MonitorConfig::alert_max_eta_sd_h`], hours.
+pub const DEFAULT_ALERT_MAX_ETA_SD_H: f64 = 1.5;
 
 impl<T: Real> Default for MonitorConfig<T> {
     fn default() -> Self {
@@ -50,6 +59,8 @@ impl<T: Real> MonitorConfig<T> {
             alert_fraction: T::from_f64(0.9),
             alert_lead_h: T::ONE,
             alert_max_rel_sd: T::from_f64(0.1),
+            alert_sds: T::from_f64(DEFAULT_ALERT_SDS),
+            alert_max_eta_sd_h: T::from_f64(DEFAULT_ALERT_MAX_ETA_SD_H),
             rearm_fraction: T::from_f64(0.6),
             sensor_min: -T::INFINITY,
             sensor_max: T::INFINITY,
@@ -67,11 +78,20 @@ impl<T: Real> MonitorConfig<T> {
     /// Defaults 0.9 and 1 h.
     ///
     /// # Errors
-    /// `fraction` must lie in (0, 1); `lead_h` must be finite and ≥ 0.
+    /// `fraction` must lie in (0, 1) and above the re-arm fraction (set
+    /// [`rearm_fraction`](Self::rearm_fraction) first to lower it: an alert
+    /// level at or below its re-arm level would raise and re-arm the alert
+    /// on every wobble of the readings); `lead_h` must be finite and ≥ 0.
     pub fn saturation_alert(mut self, fraction: T, lead_h: T) -> Result<Self, Error> {
         if !(fraction > T::ZERO && fraction < T::ONE) {
             return Err(Error::OutOfRange {
                 parameter: "alert_fraction",
+            });
+        }
+        if !(fraction > self.rearm_fraction) {
+            return Err(Error::Conflict {
+                parameter: "alert_fraction",
+                other: "rearm_fraction",
             });
         }
         let lead_h = finite(lead_h, "alert_lead_h")?;
@@ -96,16 +116,53 @@ impl<T: Real> MonitorConfig<T> {
         Ok(self)
     }
 
+    /// How early the alert comes: it fires once the forecast time minus
+    /// `sds` of its standard deviations is within the lead time (default
+    /// [`DEFAULT_ALERT_SDS`]; 0 trusts the forecast's centre, 1.96 its 95 %
+    /// interval's early end). Larger values make a late alert rarer and an
+    /// early one more likely when the forecast is uncertain.
+    ///
+    /// # Errors
+    /// Must be finite and ≥ 0.
+    pub fn alert_sds(mut self, sds: T) -> Result<Self, Error> {
+        let sds = finite(sds, "alert_sds")?;
+        if sds < T::ZERO {
+            return Err(Error::OutOfRange {
+                parameter: "alert_sds",
+            });
+        }
+        self.alert_sds = sds;
+        Ok(self)
+    }
+
+    /// The largest standard deviation (hours) of the forecast time to the
+    /// alert fraction for the forecast to raise the alert (default
+    /// [`DEFAULT_ALERT_MAX_ETA_SD_H`]); until the forecast is that precise,
+    /// only the readings reaching the alert level raise it.
+    ///
+    /// # Errors
+    /// Must be finite and > 0.
+    pub fn alert_max_eta_sd_h(mut self, sd_h: T) -> Result<Self, Error> {
+        self.alert_max_eta_sd_h = positive(sd_h, "alert_max_eta_sd_h")?;
+        Ok(self)
+    }
+
     /// After an alert, it re-arms once the readings fall below this fraction
     /// of the capacity (a dilution), default 0.6; the gap to the alert
     /// fraction is the hysteresis.
     ///
     /// # Errors
-    /// Must lie in (0, 1).
+    /// Must lie in (0, 1) and below the alert fraction.
     pub fn rearm_fraction(mut self, fraction: T) -> Result<Self, Error> {
         if !(fraction > T::ZERO && fraction < T::ONE) {
             return Err(Error::OutOfRange {
                 parameter: "rearm_fraction",
+            });
+        }
+        if !(fraction < self.alert_fraction) {
+            return Err(Error::Conflict {
+                parameter: "rearm_fraction",
+                other: "alert_fraction",
             });
         }
         self.rearm_fraction = fraction;

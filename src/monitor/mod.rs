@@ -21,8 +21,10 @@
 //!   estimate's covariance (see [`Estimate::time_to_reach`]); the 95 %
 //!   interval is ± 1.96 sd.
 //! * **Saturation alert** fires once when the capacity's relative sd is at
-//!   most `alert_max_rel_sd` and either the early end of the 95 % interval of
-//!   the forecast time to the alert fraction is within the lead time, or the
+//!   most `alert_max_rel_sd` and either the forecast time to the alert
+//!   fraction, less `alert_sds` of its standard deviations (default one),
+//!   is within the lead time and that forecast is informative (sd at most
+//!   `alert_max_eta_sd_h`), or the
 //!   readings' median has already reached the alert level. It re-arms when
 //!   the readings fall below `rearm_fraction` of capacity or the estimator
 //!   restarts (a dilution).
@@ -34,7 +36,7 @@ mod config;
 mod event;
 mod watch;
 
-pub use config::MonitorConfig;
+pub use config::{DEFAULT_ALERT_MAX_ETA_SD_H, DEFAULT_ALERT_SDS, MonitorConfig};
 pub use event::{Event, Fault, Faults, Phase, Target, TimedEvent};
 pub use watch::Watch;
 
@@ -471,9 +473,14 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         // A forecast time already in the past while the readings are below
         // the alert level means the estimate is stale (a dilution the
         // estimator has not yet restarted on): wait for the readings.
+        // An informative forecast only: one whose sd is within
+        // `alert_max_eta_sd_h`. A forecast uncertain by hours says "any time
+        // now" long before the culture gets there (on invented slow-shoulder
+        // cultures it fired 3–5 h early in a third of them).
         let due = eta.is_some_and(|eta| {
             eta.value >= time_h
-                && eta.value - T::from_f64(1.96) * eta.sd - time_h <= self.config.alert_lead_h
+                && eta.sd <= self.config.alert_max_eta_sd_h
+                && eta.value - self.config.alert_sds * eta.sd - time_h <= self.config.alert_lead_h
         });
         if reached || due {
             self.alert_active = true;
