@@ -131,8 +131,30 @@ fn bubbles_are_rejected_and_do_not_move_the_estimate() {
         ..Stream::default()
     };
     let config = EstimatorConfig::new().blank(0.0).unwrap();
-    let a = tally(&clean, &truth, config, Fit::Shape);
-    let b = tally(&bubbly, &truth, config, Fit::Shape);
+    let a = tally(&clean, &truth, config, Fit::Logistic);
+    let b = tally(&bubbly, &truth, config, Fit::Logistic);
+    // The default shape-aware family: bubbles cost it little too.
+    let (sa, sb) = (
+        tally(&clean, &truth, config, Fit::Shape),
+        tally(&bubbly, &truth, config, Fit::Shape),
+    );
+    eprintln!(
+        "shape family, capacity RMSE clean {:.5} bubbles {:.5}; μmax {:.5} / {:.5}; coverage {}/{} {}/{}",
+        rmse(sa.sq_k, sa.runs),
+        rmse(sb.sq_k, sb.runs),
+        rmse(sa.sq_r, sa.runs),
+        rmse(sb.sq_r, sb.runs),
+        sb.covered_k,
+        sb.runs,
+        sb.covered_r,
+        sb.runs
+    );
+    assert!(rmse(sb.sq_k, sb.runs) < 1.3 * rmse(sa.sq_k, sa.runs));
+    // μmax rests on the early, low readings, where a 0.3 OD bubble that
+    // slips in before the first fit weighs most: measured 1.85× the clean
+    // RMSE (0.025 against 0.013 per h), with its intervals still honest.
+    assert!(rmse(sb.sq_r, sb.runs) < 2.2 * rmse(sa.sq_r, sa.runs));
+    assert!(sb.covered_k >= 34 && sb.covered_r >= 34);
     assert!(
         rmse(b.sq_k, b.runs) < 1.3 * rmse(a.sq_k, a.runs),
         "capacity RMSE with bubbles {:.5} vs clean {:.5}",
@@ -176,7 +198,7 @@ fn gaps_and_jitter_keep_it_on_track() {
         ..Stream::default()
     };
     let config = EstimatorConfig::new().blank(0.0).unwrap();
-    let t = tally(&stream, &truth, config, Fit::Shape);
+    let t = tally(&stream, &truth, config, Fit::Logistic);
     let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
     assert!(rmse(t.sq_k, t.runs) < 1.5 * crb[0]);
     assert!(rmse(t.sq_r, t.runs) < 1.5 * crb[1]);
@@ -187,21 +209,26 @@ fn gaps_and_jitter_keep_it_on_track() {
 fn inflection_and_forecast_match_the_closed_form() {
     let truth = reference_culture();
     let readings = Stream::default().generate(&truth, 7);
-    let est = run_f32::<16>(EstimatorConfig::new(), &readings)
-        .estimate()
-        .unwrap();
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let est = run_f32::<16>(config, &readings).estimate().unwrap();
     let m = est.inflection_time_h.unwrap();
     assert!((f64::from(m.value) - 8.0).abs() < 3.0 * f64::from(m.sd).max(0.01));
-    assert!((f64::from(est.doubling_time_h.value) - core::f64::consts::LN_2 / 0.7).abs() < 0.02);
+    // Doubling time ln 2 / μmax, μmax = r (1 − y₀/K) from the first reading.
+    let mu = logistic_mu_max(&truth, readings[0].time_h);
+    let doubling = est.doubling_time_h;
+    assert!(
+        (f64::from(doubling.value) - core::f64::consts::LN_2 / mu).abs()
+            < 3.0 * f64::from(doubling.sd)
+    );
     // Time to 90 % of capacity: t_m + ln 9 / r (FACTS.md).
     let t90 = est.time_to_fraction(0.9).unwrap();
     assert!(
         (f64::from(t90.value) - (8.0 + 9.0_f64.ln() / 0.7)).abs()
             < 3.0 * f64::from(t90.sd).max(0.01)
     );
-    // This culture starts at 0.0055 OD, under the 0.003 OD noise floor's
-    // reach: its starting level, and so its lag, cannot be told.
-    assert!(est.lag_h.is_none());
+    // No lag in a logistic: the tangent lag is 0 within its sd.
+    let lag = est.lag_h.unwrap();
+    assert!(f64::from(lag.value).abs() <= 3.0 * f64::from(lag.sd) + 0.05, "{lag:?}");
 }
 
 /// Lag by the tangent construction on ln y against the Baranyi–Roberts model,
@@ -286,7 +313,7 @@ fn a_blank_offset_is_removed() {
         ..Stream::default()
     };
     let config = EstimatorConfig::new().blank(0.08).unwrap();
-    let t = tally(&stream, &truth, config, Fit::Shape);
+    let t = tally(&stream, &truth, config, Fit::Logistic);
     let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
     assert!(rmse(t.sq_k, t.runs) < 1.35 * crb[0]);
     assert!(rmse(t.sq_r, t.runs) < 1.35 * crb[1]);
@@ -382,7 +409,7 @@ fn a_dilution_restarts_and_the_estimator_reconverges() {
         }
     })
     .collect();
-    let mut est = Estimator::<f32>::new(EstimatorConfig::new());
+    let mut est = Estimator::<f32>::new(EstimatorConfig::new().blank(0.0).unwrap());
     for r in &first {
         est.update(r.time_h as f32, r.value as f32);
     }
@@ -408,10 +435,14 @@ fn a_dilution_restarts_and_the_estimator_reconverges() {
     let e = est.estimate().expect("re-converged");
     let k = e.capacity.expect("capacity after regrowth");
     assert!((f64::from(k.value) - 1.5).abs() < 0.02, "{k:?}");
+    // μmax of the regrowth from its restart level: r (1 − y/K) there
+    // (the logistic's per-capita rate, FACTS.md).
+    let restart_level = second[restart - 3].truth;
+    let mu = 0.7 * (1.0 - restart_level / 1.5);
+    let r = e.rate_per_h;
     assert!(
-        (f64::from(e.rate_per_h.value) - 0.7).abs() < 0.03,
-        "{:?}",
-        e.rate_per_h
+        (f64::from(r.value) - mu).abs() < 2.0 * f64::from(r.sd),
+        "{r:?} against {mu}"
     );
 }
 
@@ -501,85 +532,110 @@ fn intervals_widen_when_the_culture_is_not_a_logistic() {
 }
 
 /// A noiseless logistic stream: the f32 estimate converges to the closed
-/// form's capacity and rate within 1e-3 relative (closed form: FACTS.md).
+/// form's capacity and rate within 1e-3 relative (closed form: FACTS.md),
+/// for the plain logistic; the default shape-aware family within 1e-3 for
+/// the capacity and 1 % for μmax (its no-lag prior, h₀ ≈ 0.005, leaves the
+/// fitted curve a lag of minutes that the readings of a culture under the
+/// noise floor at its start cannot rule out: measured −0.5 %).
 #[test]
 fn noiseless_stream_converges_to_the_closed_form() {
     let truth = reference_culture();
-    let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let mut shape = Estimator::<f32>::new(config);
+    let mut plain = plateau::LogisticEstimator::<f32>::new(config);
     for i in 0..=240 {
         let t = f64::from(i) / 12.0;
-        assert!(
-            estimator
-                .update(t as f32, truth.value(t) as f32)
-                .is_accepted()
-        );
+        let y = truth.value(t) as f32;
+        assert!(shape.update(t as f32, y).is_accepted());
+        assert!(plain.update(t as f32, y).is_accepted());
     }
-    let e = estimator.estimate().unwrap();
-    let k = f64::from(e.capacity.unwrap().value);
-    let r = f64::from(e.rate_per_h.value);
+    let p = plain.estimate().unwrap();
+    let k = f64::from(p.capacity.unwrap().value);
+    let r = f64::from(p.rate_per_h.value);
     assert!((k / 1.5 - 1.0).abs() < 1e-3, "capacity {k}");
     assert!((r / 0.7 - 1.0).abs() < 1e-3, "rate {r}");
-    let m = f64::from(e.inflection_time_h.unwrap().value);
+    let m = f64::from(p.inflection_time_h.unwrap().value);
     assert!((m - 8.0).abs() < 1e-2, "midpoint {m}");
+    let e = shape.estimate().unwrap();
+    let k = f64::from(e.capacity.unwrap().value);
+    assert!((k / 1.5 - 1.0).abs() < 1e-3, "capacity {k}");
+    // μmax from the first reading: r (1 − y(0)/K) (FACTS.md).
+    let mu = logistic_mu_max(&truth, 0.0);
+    let r = f64::from(e.rate_per_h.value);
+    assert!((r / mu - 1.0).abs() < 1e-2, "rate {r} against {mu}");
+    let m = f64::from(e.inflection_time_h.unwrap().value);
+    assert!((m - 8.0).abs() < 2e-2, "inflection {m}");
+    let nu = e.shape.unwrap().value;
+    assert!((nu - 1.0).abs() < 0.02, "shape {nu}");
 }
 
 /// Carlson's 1913 yeast culture, hourly for 18 h (Carlson, Biochem. Z.
-/// 57:313–334, 1913, as tabulated by Pearl 1927; FACTS.md), fed as a stream.
-/// Its unweighted least-squares logistic fit (FACTS.md, computed with a
-/// general-purpose fitter): K = 663.02 ± 1.70, r = 0.54699 ± 0.00558 per h.
-/// With a constant noise model (the fit's residual sd, 3.485) the online
-/// estimate must agree within two standard errors.
-#[test]
-fn carlson_yeast_matches_the_published_least_squares_fit() {
-    const YEAST: [f32; 19] = [
-        9.6, 18.3, 29.0, 47.2, 71.1, 119.1, 174.6, 257.3, 350.7, 441.0, 513.3, 559.7, 594.8, 629.4,
-        640.8, 651.1, 655.9, 659.6, 661.8,
-    ];
-    let config = EstimatorConfig::new().noise(3.485, 0.0).unwrap();
-    let mut estimator = Estimator::<f32>::new(config);
+/// 57:313–334, 1913, as tabulated by Pearl 1927; REFERENCES.md), fed as a
+/// stream. Its unweighted least-squares logistic fit (computed with a
+/// general-purpose fitter, REFERENCES.md): K = 663.02 ± 1.70,
+/// r = 0.54699 ± 0.00558 per h.
+const YEAST: [f32; 19] = [
+    9.6, 18.3, 29.0, 47.2, 71.1, 119.1, 174.6, 257.3, 350.7, 441.0, 513.3, 559.7, 594.8, 629.4,
+    640.8, 651.1, 655.9, 659.6, 661.8,
+];
+
+/// Feeds Carlson's culture; every reading must be accepted (none of them is
+/// a fault).
+fn feed_yeast<const P: usize, F: plateau::OnlineFamily<f32, P>>(
+    estimator: &mut Estimator<f32, 16, P, F>,
+) -> plateau::Estimate<f32, P, F> {
     for (hour, &amount) in YEAST.iter().enumerate() {
         let t = f32::from(u8::try_from(hour).unwrap());
         assert!(estimator.update(t, amount).is_accepted(), "hour {hour}");
     }
-    let e = estimator.estimate().unwrap();
-    let k = e.capacity.unwrap();
-    let r = e.rate_per_h;
-    eprintln!("Carlson online: K {k:?}, r {r:?}");
+    estimator.estimate().unwrap()
+}
+
+/// The plain logistic with the fit's own constant noise model (its
+/// residual sd, 3.485) must agree with the published fit within two of its
+/// standard errors, with standard errors of the published size.
+#[test]
+fn carlson_yeast_matches_the_published_least_squares_fit() {
+    let config = EstimatorConfig::new().noise(3.485, 0.0).unwrap().blank(0.0).unwrap();
+    let e = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(config));
+    let (k, r) = (e.capacity.unwrap(), e.rate_per_h);
+    eprintln!("Carlson online, constant noise: K {k:?}, r {r:?}");
     assert!((f64::from(k.value) - 663.02).abs() < 2.0 * 1.70, "{k:?}");
-    assert!(
-        (f64::from(r.value) - 0.54699).abs() < 2.0 * 0.00558,
-        "{r:?}"
-    );
+    assert!((f64::from(r.value) - 0.54699).abs() < 2.0 * 0.00558, "{r:?}");
     // Its own standard errors are of the published size (within a factor 2).
     assert!(f64::from(k.sd) > 0.85 && f64::from(k.sd) < 3.4, "{k:?}");
 }
 
+/// A sparse culture in non-OD units with the default, OD-shaped noise model
+/// (0.003 floor, 1 % proportional): the learnt noise split must bring the
+/// logistic back to the published fit within its own interval, with no
+/// reading gated away.
 #[test]
-fn scratch_shape_on_logistic() {
-    let truth = reference_culture();
-    for (name, stream) in [("clean", Stream::default()), ("gap", Stream { gap: Some((6.0, 10.0)), jitter_h: 0.03, ..Stream::default() }), ("bubbly", Stream { spike_probability: 0.05, spike_od: 0.3, ..Stream::default() })] {
-        let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
-        for (fit, cfg) in [(Fit::Shape, EstimatorConfig::new().blank(0.0).unwrap()), (Fit::Logistic, EstimatorConfig::new().blank(0.0).unwrap()), (Fit::Shape, EstimatorConfig::new().blank(0.0).unwrap().learn_noise(false))] {
-            let t = tally(&stream, &truth, cfg, fit);
-            eprintln!("{name} shape={} k {:.3} r {:.3} cov {} {}", fit == Fit::Shape, rmse(t.sq_k, t.runs) / crb[0], rmse(t.sq_r, t.runs) / crb[1], t.covered_k, t.covered_r);
-        }
-    }
+fn carlson_yeast_with_learnt_noise_agrees_with_the_published_fit() {
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let e = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(config));
+    let (k, r) = (e.capacity.unwrap(), e.rate_per_h);
+    eprintln!(
+        "Carlson online, learnt noise: K {k:?}, r {r:?}, noise {} + {} y",
+        e.noise_floor, e.noise_fraction
+    );
+    assert!((f64::from(k.value) - 663.02).abs() < 1.96 * f64::from(k.sd) + 1.70, "{k:?}");
+    assert!((f64::from(r.value) - 0.54699).abs() < 1.96 * f64::from(r.sd) + 0.00558, "{r:?}");
+    // Without learning, the same config gave a rate outside its interval.
+    let fixed = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(config.learn_noise(false)));
+    eprintln!("Carlson online, fixed OD noise: r {:?}", fixed.rate_per_h);
 }
 
+/// The default shape-aware family on the same culture, learnt noise: its
+/// capacity agrees with the published logistic fit within the two
+/// intervals, and it finds Carlson's culture close to symmetric.
 #[test]
-fn scratch_bias() {
-    let truth = reference_culture();
-    let stream = Stream::default();
-    let cfg = EstimatorConfig::new().blank(0.0).unwrap();
-    let (mut b, mut sd, mut n) = (0.0, 0.0, 0.0);
-    for seed in 0..20 {
-        let readings = stream.generate(&truth, seed);
-        let est = run_f32::<16>(cfg, &readings).estimate().unwrap();
-        let mu = logistic_mu_max(&truth, readings[0].time_h);
-        b += f64::from(est.rate_per_h.value) - mu;
-        sd += f64::from(est.rate_per_h.sd);
-        n += 1.0;
-        if seed < 5 { eprintln!("mu {mu:.4} est {:?} nu {:?} lag {:?} theta {:?}", est.rate_per_h, est.shape, est.lag_h, est.parameters()); }
-    }
-    eprintln!("bias {:.4} mean sd {:.4}", b / n, sd / n);
+fn carlson_yeast_with_the_shape_family() {
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let e = feed_yeast(&mut Estimator::<f32>::new(config));
+    let (k, nu) = (e.capacity.unwrap(), e.shape.unwrap());
+    eprintln!("Carlson online, shape family: K {k:?}, μmax {:?}, ν {nu:?}", e.rate_per_h);
+    let combined = (f64::from(k.sd).powi(2) + 1.70_f64.powi(2)).sqrt();
+    assert!((f64::from(k.value) - 663.02).abs() < 1.96 * combined, "{k:?}");
+    assert!((f64::from(nu.value) - 1.0).abs() < 1.96 * f64::from(nu.sd) + 0.1, "{nu:?}");
 }

@@ -326,9 +326,8 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
             return Outcome::Rejected(Rejection::NotFinite);
         }
         // Near the blank, noise legitimately reads a little below it; only a
-        // value further below than the gate allows for noise (and for the
-        // blank's own uncertainty) is invalid.
-        let below = self.config.gate_sigma * (self.noise.sd(T::ZERO) + self.blank_sd);
+        // value further below than the gate allows for noise is invalid.
+        let below = self.config.gate_sigma * self.noise.sd(T::ZERO);
         if value < self.blank - below {
             return Outcome::Rejected(Rejection::Negative);
         }
