@@ -12,7 +12,7 @@
 mod hardening;
 mod streams;
 
-use plateau::{EstimatorConfig, MonitorConfig, Outcome, Watch};
+use plateau::{EstimatorConfig, Logistic, MonitorConfig, Outcome, Watch};
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 use rand_distr::{Distribution, Normal};
@@ -71,8 +71,15 @@ fn run_cycles(cycles: u64, max_readings: u64, seed: u64) -> Stats {
     let config = EstimatorConfig::<f32>::new()
         // One cycle grows 2× at most; growth of 1.3× starts the fit.
         .min_growth_ratio(1.3)
+        .unwrap()
+        // A turbidostat's photometer is blanked on the medium.
+        .blank(0.0)
         .unwrap();
-    let mut watch: Watch = Watch::new(config, MonitorConfig::new());
+    // A turbidostat sees a short stretch of the curve per cycle, from which
+    // the five-parameter shape-aware family cannot place the capacity: the
+    // plain logistic is the family for it (README, "Choosing a family").
+    let mut watch: Watch<f32, 16, 4, 8, 3, Logistic<f32>> =
+        Watch::new(config, MonitorConfig::new());
     let mut rng = StdRng::seed_from_u64(seed);
     let unit = Normal::<f64>::new(0.0, 1.0).unwrap();
     let mut stats = Stats::default();

@@ -33,7 +33,8 @@ fn lag_growth_decline(t: f64) -> f64 {
 
 #[test]
 fn phases_and_events_come_out_in_order_without_flicker() {
-    let mut watch: Watch = Watch::new(EstimatorConfig::new(), MonitorConfig::new());
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let mut watch: Watch = Watch::new(config, MonitorConfig::new());
     let mut events = Vec::new();
     let mut phases = Vec::new();
     // Every 5 minutes for 30 h, with a small deterministic ripple (±0.5 %).
@@ -67,12 +68,18 @@ fn phases_and_events_come_out_in_order_without_flicker() {
     // 12 + ln 19/0.7 = 16.21 h. Confirmation takes 3 readings (15 min).
     let at = |p: Phase| changes.iter().find(|c| c.2 == p).unwrap().0;
     // Deceleration also waits for the capacity to be published (relative sd
-    // below 0.15), which with fast-math comes half an hour after 30 %.
+    // below 0.15). The five-parameter shape-aware curve pins its capacity
+    // down later than the plain logistic did on this culture, whose growth
+    // starts abruptly after a flat 4 h: measured 1.7 h after 30 %, 0.2 h
+    // before the inflection at 12 h.
     assert!(
-        at(Phase::Deceleration) > 10.79 && at(Phase::Deceleration) < 10.79 + 0.75,
+        at(Phase::Deceleration) > 10.79 && at(Phase::Deceleration) < 12.75,
         "{changes:?}"
     );
-    assert!((at(Phase::Stationary) - 16.21).abs() < 0.6, "{changes:?}");
+    // Measured 0.62 h after the closed form's 95 % time with the shape-aware
+    // curve (whose smooth lag bends the approach to this abrupt culture's
+    // plateau a little), 0.4 h with the plain logistic.
+    assert!((at(Phase::Stationary) - 16.21).abs() < 0.8, "{changes:?}");
     // Decline of 10 % at 5 %/h: ln(1/0.9)/0.05 = 2.1 h after 22 h.
     assert!((at(Phase::Decline) - 24.1).abs() < 0.8, "{changes:?}");
     // The exponential phase is declared once growth is seen: after the lag.
@@ -179,6 +186,7 @@ fn saturation_alert_fires_before_the_crossing_and_not_too_early() {
             ..Stream::default()
         }
         .generate(&truth, seed);
+        // The default estimator: the blank unknown.
         let mut watch: Watch = Watch::new(EstimatorConfig::new(), MonitorConfig::new());
         let mut alert = None;
         for r in &readings {
@@ -267,7 +275,8 @@ fn a_dilution_rearms_the_alert() {
 #[test]
 fn user_targets_fire_due_then_reached() {
     let truth = reference_culture();
-    let mut watch: Watch = Watch::new(EstimatorConfig::new(), MonitorConfig::new());
+    let config = EstimatorConfig::new().blank(0.0).unwrap();
+    let mut watch: Watch = Watch::new(config, MonitorConfig::new());
     let induction = watch.add_target(Target::Level(0.6)).unwrap();
     let harvest = watch.add_target(Target::FractionOfCapacity(0.8)).unwrap();
     assert!(watch.add_target(Target::FractionOfCapacity(1.5)).is_err());

@@ -315,12 +315,23 @@ impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
         if !(fraction > T::ZERO && fraction < T::ONE) {
             return None;
         }
-        let main = self.time_to(fraction * self.curve.capacity(), true)?;
+        let main = self.time_to_fraction_fit_only(fraction)?;
         let spread = self.shadow.and_then(|(c, _)| {
             c.time_to_level(fraction * c.capacity())
                 .map(|t| t + self.origin_h - main.value)
         });
         Some(widen_by(main, spread))
+    }
+
+    /// [`time_to_fraction`](Self::time_to_fraction) with the fit's own
+    /// uncertainty only, without an unknown blank's spread: how well the
+    /// readings pin the crossing down, whatever the blank turns out to be.
+    #[must_use]
+    pub fn time_to_fraction_fit_only(&self, fraction: T) -> Option<Measured<T>> {
+        if !(fraction > T::ZERO && fraction < T::ONE) {
+            return None;
+        }
+        self.time_to(fraction * self.curve.capacity(), true)
     }
 
     fn time_to(&self, level: T, moves_with_capacity: bool) -> Option<Measured<T>> {

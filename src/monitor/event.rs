@@ -7,8 +7,12 @@ use crate::Real;
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum Phase {
-    /// The readings have not yet shown growth (less than the estimator's
-    /// `min_growth_ratio` since the start).
+    /// Not yet known: the readings have not yet shown growth (less than the
+    /// estimator's `min_growth_ratio` since the start), so nothing can be
+    /// said of the phase — in particular not that it is a lag.
+    Unknown,
+    /// A lag the fitted curve shows (its tangent lag clear of its
+    /// uncertainty) and that has not ended yet.
     Lag,
     /// Growth near the maximum specific rate: below the deceleration
     /// fraction of capacity, or capacity not yet in sight.
@@ -28,6 +32,7 @@ impl Phase {
     #[must_use]
     pub const fn as_str(&self) -> &'static str {
         match self {
+            Self::Unknown => "not_yet_known",
             Self::Lag => "lag",
             Self::Exponential => "exponential",
             Self::Deceleration => "deceleration",

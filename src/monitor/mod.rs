@@ -10,8 +10,10 @@
 //! * **Phase** from the fitted signal as a fraction p of the capacity: the
 //!   logistic's per-capita rate is r(1 − p), so p = 0.3 is where it has fallen
 //!   to 70 % of its maximum (deceleration) and p = 0.95 where it is below 5 %
-//!   (stationary); thresholds are configurable. Lag until the estimator has
-//!   seen growth; exponential while the capacity is not yet in sight.
+//!   (stationary); thresholds are configurable. Not yet known until the
+//!   estimator has seen growth; lag only while the fit shows a lag clear of
+//!   its uncertainty that has not ended yet (a culture with no lag is never
+//!   called lagging); exponential while the capacity is not yet in sight.
 //!   Decline when the median of the last three readings falls by the decline
 //!   fraction below the highest median seen while stationary. Phases only
 //!   move forward (a batch culture does not grow backwards), and a new phase
@@ -24,8 +26,11 @@
 //!   most `alert_max_rel_sd` and either the forecast time to the alert
 //!   fraction, less `alert_sds` of its standard deviations (default one),
 //!   is within the lead time and that forecast is informative (sd at most
-//!   `alert_max_eta_sd_h`), or the
-//!   readings' median has already reached the alert level. It re-arms when
+//!   `alert_max_eta_sd_h`), or the readings' median has already reached the
+//!   alert level. The alert uses the fit's own forecast and precision
+//!   ([`Estimate::time_to_fraction_fit_only`]): an unknown blank's spread
+//!   moves the capacity above blank, not where the readings level off. It
+//!   re-arms when
 //!   the readings fall below `rearm_fraction` of capacity or the estimator
 //!   restarts (a dilution).
 //! * **Targets** fire "due" when the forecast is informative (its sd at most
@@ -81,7 +86,7 @@ struct TargetState<T> {
 /// let truth = Logistic::<f64>::from_midpoint(1.5, 0.7, 8.0)?;
 /// let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
 /// let mut monitor: Monitor = Monitor::new(MonitorConfig::new());
-/// let mut phase = Phase::Lag;
+/// let mut phase = Phase::Unknown;
 /// for i in 0..=120 {
 ///     let t = f64::from(i) / 6.0;
 ///     let (t, y) = (t as f32, truth.value(t) as f32);
@@ -121,8 +126,8 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
     pub fn new(config: MonitorConfig<T>) -> Self {
         Self {
             config,
-            phase: Phase::Lag,
-            pending: Phase::Lag,
+            phase: Phase::Unknown,
+            pending: Phase::Unknown,
             pending_count: 0,
             last_time_h: T::ZERO,
             has_time: false,
@@ -276,7 +281,14 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
             .filter(|e| e.capacity.is_some())
             .and_then(|e| e.time_to_fraction(self.config.alert_fraction));
         if valid && let Some(e) = estimate {
-            self.saturation(time_h, e, saturation_eta_h);
+            // The alert decides on the fit's own forecast: an unknown
+            // blank moves the capacity above blank, but where the readings
+            // cross a fraction of their plateau hardly (a tenth of the blank
+            // in level), and its spread made alerts hours early.
+            let fit_eta = e
+                .capacity
+                .and_then(|_| e.time_to_fraction_fit_only(self.config.alert_fraction));
+            self.saturation(time_h, e, fit_eta);
             self.targets_due(time_h, e);
         }
         Report {
@@ -358,15 +370,15 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         self.recent_count = 0;
         self.stationary_peak = T::ZERO;
         let from = self.phase;
-        self.phase = Phase::Lag;
-        self.pending = Phase::Lag;
+        self.phase = Phase::Unknown;
+        self.pending = Phase::Unknown;
         self.pending_count = 0;
-        if from != Phase::Lag {
+        if from != Phase::Unknown {
             self.push(
                 time_h,
                 Event::Phase {
                     from,
-                    to: Phase::Lag,
+                    to: Phase::Unknown,
                 },
             );
         }
@@ -381,8 +393,17 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         estimate: Option<&Estimate<T, P, F>>,
     ) -> Phase {
         let Some(e) = estimate else {
-            return Phase::Lag;
+            return Phase::Unknown;
         };
+        // A lag only when the fit shows one, clear of its uncertainty (the
+        // early end of its 95 % interval after the first reading), and it
+        // has not ended yet.
+        if let Some(lag) = e.lag_h
+            && lag.value - T::from_f64(1.96) * lag.sd > T::ZERO
+            && e.latest_time_h < e.origin_h() + lag.value
+        {
+            return Phase::Lag;
+        }
         // Past exponential only once the estimator publishes a capacity (its
         // precision and signal-to-noise bars): phases never step back.
         let Some(capacity) = e.capacity else {
@@ -465,7 +486,10 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
             }
             return;
         }
-        if capacity.relative_sd() > self.config.alert_max_rel_sd {
+        // The fit's own precision (an unknown blank's spread, which moves
+        // the capacity above blank but not where the readings level off,
+        // does not hold the alert back).
+        if e.capacity_unchecked().relative_sd() > self.config.alert_max_rel_sd {
             return;
         }
         let alert_level = self.config.alert_fraction * capacity.value;

@@ -1,6 +1,7 @@
 //! One call per reading: an estimator and a monitor together.
 
 use super::{Monitor, MonitorConfig, Report, Target, TimedEvent};
+use crate::model::{LagRichards, OnlineFamily};
 use crate::{Error, Estimate, Estimator, EstimatorConfig, Measured, Real};
 
 /// The firmware facade: feed a reading, get a [`Report`], drain events.
@@ -40,13 +41,21 @@ pub struct Watch<
     const N: usize = 16,
     const TARGETS: usize = 4,
     const EVENTS: usize = 8,
+    const P: usize = 5,
+    F: OnlineFamily<T, P> = LagRichards<T>,
 > {
-    estimator: Estimator<T, N>,
+    estimator: Estimator<T, N, P, F>,
     monitor: Monitor<T, TARGETS, EVENTS>,
 }
 
-impl<T: Real, const N: usize, const TARGETS: usize, const EVENTS: usize>
-    Watch<T, N, TARGETS, EVENTS>
+impl<
+    T: Real,
+    const N: usize,
+    const TARGETS: usize,
+    const EVENTS: usize,
+    const P: usize,
+    F: OnlineFamily<T, P>,
+> Watch<T, N, TARGETS, EVENTS, P, F>
 {
     /// A new watch over a new culture.
     #[must_use]
@@ -75,7 +84,7 @@ impl<T: Real, const N: usize, const TARGETS: usize, const EVENTS: usize>
 
     /// The current estimate, if any.
     #[must_use]
-    pub fn estimate(&self) -> Option<Estimate<T>> {
+    pub fn estimate(&self) -> Option<Estimate<T, P, F>> {
         self.estimator.estimate()
     }
 
@@ -98,7 +107,7 @@ impl<T: Real, const N: usize, const TARGETS: usize, const EVENTS: usize>
 
     /// The estimator.
     #[must_use]
-    pub fn estimator(&self) -> &Estimator<T, N> {
+    pub fn estimator(&self) -> &Estimator<T, N, P, F> {
         &self.estimator
     }
 

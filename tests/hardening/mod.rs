@@ -288,7 +288,10 @@ pub fn check_report(report: &Report<f32>, context: &str) {
 /// Every field of the estimate finite, capacity and rate positive, the
 /// covariance symmetric positive definite.
 #[track_caller]
-pub fn check_estimate(e: &Estimate<f32>, context: &str) {
+pub fn check_estimate<const P: usize, F: plateau::OnlineFamily<f32, P>>(
+    e: &Estimate<f32, P, F>,
+    context: &str,
+) {
     check_measured(&e.rate_per_h, "rate_per_h", context);
     check_measured(&e.doubling_time_h, "doubling_time_h", context);
     check_measured(&e.fitted_value, "fitted_value", context);
@@ -364,8 +367,14 @@ pub fn cholesky_f64<const P: usize>(a: &[[f32; P]; P]) -> Option<[[f64; P]; P]> 
 
 /// The queue within its capacity and the ledger balanced.
 #[track_caller]
-pub fn check_events<const N: usize, const TARGETS: usize, const EVENTS: usize>(
-    watch: &Watch<f32, N, TARGETS, EVENTS>,
+pub fn check_events<
+    const N: usize,
+    const TARGETS: usize,
+    const EVENTS: usize,
+    const P: usize,
+    F: plateau::OnlineFamily<f32, P>,
+>(
+    watch: &Watch<f32, N, TARGETS, EVENTS, P, F>,
     taken: u64,
     context: &str,
 ) {
