@@ -45,8 +45,8 @@ pub use estimator::{
 };
 pub use math::Real;
 pub use monitor::{
-    DEFAULT_ALERT_MAX_ETA_SD_H, DEFAULT_ALERT_SDS, Event, Fault, Faults, Monitor, MonitorConfig, Phase, Report, Target,
-    TimedEvent, Watch,
+    DEFAULT_ALERT_MAX_ETA_SD_H, DEFAULT_ALERT_SDS, Event, Fault, Faults, Monitor, MonitorConfig,
+    Phase, Report, Target, TimedEvent, Watch,
 };
 pub mod model;
 pub use photometer::{

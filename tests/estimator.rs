@@ -228,7 +228,10 @@ fn inflection_and_forecast_match_the_closed_form() {
     );
     // No lag in a logistic: the tangent lag is 0 within its sd.
     let lag = est.lag_h.unwrap();
-    assert!(f64::from(lag.value).abs() <= 3.0 * f64::from(lag.sd) + 0.05, "{lag:?}");
+    assert!(
+        f64::from(lag.value).abs() <= 3.0 * f64::from(lag.sd) + 0.05,
+        "{lag:?}"
+    );
 }
 
 /// Lag by the tangent construction on ln y against the Baranyi–Roberts model,
@@ -596,12 +599,19 @@ fn feed_yeast<const P: usize, F: plateau::OnlineFamily<f32, P>>(
 /// standard errors, with standard errors of the published size.
 #[test]
 fn carlson_yeast_matches_the_published_least_squares_fit() {
-    let config = EstimatorConfig::new().noise(3.485, 0.0).unwrap().blank(0.0).unwrap();
+    let config = EstimatorConfig::new()
+        .noise(3.485, 0.0)
+        .unwrap()
+        .blank(0.0)
+        .unwrap();
     let e = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(config));
     let (k, r) = (e.capacity.unwrap(), e.rate_per_h);
     eprintln!("Carlson online, constant noise: K {k:?}, r {r:?}");
     assert!((f64::from(k.value) - 663.02).abs() < 2.0 * 1.70, "{k:?}");
-    assert!((f64::from(r.value) - 0.54699).abs() < 2.0 * 0.00558, "{r:?}");
+    assert!(
+        (f64::from(r.value) - 0.54699).abs() < 2.0 * 0.00558,
+        "{r:?}"
+    );
     // Its own standard errors are of the published size (within a factor 2).
     assert!(f64::from(k.sd) > 0.85 && f64::from(k.sd) < 3.4, "{k:?}");
 }
@@ -619,10 +629,18 @@ fn carlson_yeast_with_learnt_noise_agrees_with_the_published_fit() {
         "Carlson online, learnt noise: K {k:?}, r {r:?}, noise {} + {} y",
         e.noise_floor, e.noise_fraction
     );
-    assert!((f64::from(k.value) - 663.02).abs() < 1.96 * f64::from(k.sd) + 1.70, "{k:?}");
-    assert!((f64::from(r.value) - 0.54699).abs() < 1.96 * f64::from(r.sd) + 0.00558, "{r:?}");
+    assert!(
+        (f64::from(k.value) - 663.02).abs() < 1.96 * f64::from(k.sd) + 1.70,
+        "{k:?}"
+    );
+    assert!(
+        (f64::from(r.value) - 0.54699).abs() < 1.96 * f64::from(r.sd) + 0.00558,
+        "{r:?}"
+    );
     // Without learning, the same config gave a rate outside its interval.
-    let fixed = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(config.learn_noise(false)));
+    let fixed = feed_yeast(&mut plateau::LogisticEstimator::<f32>::new(
+        config.learn_noise(false),
+    ));
     eprintln!("Carlson online, fixed OD noise: r {:?}", fixed.rate_per_h);
 }
 
@@ -634,8 +652,17 @@ fn carlson_yeast_with_the_shape_family() {
     let config = EstimatorConfig::new().blank(0.0).unwrap();
     let e = feed_yeast(&mut Estimator::<f32>::new(config));
     let (k, nu) = (e.capacity.unwrap(), e.shape.unwrap());
-    eprintln!("Carlson online, shape family: K {k:?}, μmax {:?}, ν {nu:?}", e.rate_per_h);
+    eprintln!(
+        "Carlson online, shape family: K {k:?}, μmax {:?}, ν {nu:?}",
+        e.rate_per_h
+    );
     let combined = (f64::from(k.sd).powi(2) + 1.70_f64.powi(2)).sqrt();
-    assert!((f64::from(k.value) - 663.02).abs() < 1.96 * combined, "{k:?}");
-    assert!((f64::from(nu.value) - 1.0).abs() < 1.96 * f64::from(nu.sd) + 0.1, "{nu:?}");
+    assert!(
+        (f64::from(k.value) - 663.02).abs() < 1.96 * combined,
+        "{k:?}"
+    );
+    assert!(
+        (f64::from(nu.value) - 1.0).abs() < 1.96 * f64::from(nu.sd) + 0.1,
+        "{nu:?}"
+    );
 }

@@ -15,8 +15,8 @@
 use super::config::NoiseModel;
 use super::history::History;
 use crate::Real;
-use crate::model::OnlineFamily;
 use crate::math::sort_small;
+use crate::model::OnlineFamily;
 
 /// A symmetric P×P matrix (the information matrix or the covariance of θ),
 /// stored whole; only symmetric updates are made to it.
@@ -307,59 +307,83 @@ impl<T: Real, const P: usize> Prior<T, P> {
     }
 }
 
-/// Weights and residuals for one pass over the slots. `scale` is the
-/// current noise scale, used for the Huber down-weighting of residuals
-/// beyond 3 standard deviations (Huber 1964), so a spike that slipped into
-/// the buffer cannot drag the fit. Fills `z2` with the squared standardised
-/// residuals (before Huber) for [`robust_sse`].
-pub(crate) fn accumulate<T: Real, F: OnlineFamily<T, P>, const P: usize, const N: usize>(
-    history: &History<T, N>,
-    noise: &NoiseModel<T>,
-    theta: &[T; P],
-    prior: &Prior<T, P>,
-    scale: T,
-    offset: T,
-    panels: &[u8; N],
-    weights: &mut [T; N],
-    z2: &mut [T; N],
-) -> Normal<T, P> {
-    let huber = T::from_f64(3.0);
-    let cut2 = huber * huber * scale * scale;
-    let curve = F::from_theta(theta);
-    let mut info = Sym::zero();
-    let mut gradient = [T::ZERO; P];
-    let mut shift = [T::ZERO; P];
-    let mut sse = T::ZERO;
-    let n = history.len();
-    for (i, weight) in weights.iter_mut().enumerate().take(n) {
-        let (mean, y, c) = history.slot(i);
-        let (first, last) = history.span(i);
-        let (f, g) = curve.slot(mean, first, last, c, panels[i]);
-        let sd = noise.sd(f);
-        let mut w = T::from_u32(u32::from(c)) / (sd * sd);
-        let e = y - offset - f;
-        z2[i] = e * e * w;
-        if z2[i] > cut2 {
-            // Huber: weight × 3 / z; the square root only for outliers.
-            w *= huber * scale / z2[i].sqrt();
+/// What one refit's passes over the slots share: the history, the noise
+/// model, the prior, the Huber scale, the value offset (0, or the shadow
+/// fit's blank height) and each slot's panel count.
+pub(crate) struct Pass<'a, T, const P: usize, const N: usize> {
+    pub(crate) history: &'a History<T, N>,
+    pub(crate) noise: NoiseModel<T>,
+    pub(crate) prior: Prior<T, P>,
+    /// The current noise scale, for the Huber down-weighting.
+    pub(crate) scale: T,
+    /// Subtracted from every slot value, signal units.
+    pub(crate) offset: T,
+    pub(crate) panels: [u8; N],
+}
+
+impl<T: Real, const P: usize, const N: usize> Pass<'_, T, P, N> {
+    /// Weights and residuals at θ, one pass over the slots. Residuals
+    /// beyond 3 standard deviations get Huber weights (Huber 1964), so a
+    /// spike that slipped into the buffer cannot drag the fit. Fills `z2`
+    /// with the squared standardised residuals (before Huber) for
+    /// [`robust_sse`].
+    pub(crate) fn normal<F: OnlineFamily<T, P>>(
+        &self,
+        theta: &[T; P],
+        weights: &mut [T; N],
+        z2: &mut [T; N],
+    ) -> Normal<T, P> {
+        let huber = T::from_f64(3.0);
+        let cut2 = huber * huber * self.scale * self.scale;
+        let curve = F::from_theta(theta);
+        let mut info = Sym::zero();
+        let mut gradient = [T::ZERO; P];
+        let mut shift = [T::ZERO; P];
+        let mut sse = T::ZERO;
+        let n = self.history.len();
+        for (i, weight) in weights.iter_mut().enumerate().take(n) {
+            let (mean, y, c) = self.history.slot(i);
+            let (first, last) = self.history.span(i);
+            let (f, g) = curve.slot(mean, first, last, c, self.panels[i]);
+            let sd = self.noise.sd(f);
+            let mut w = T::from_u32(u32::from(c)) / (sd * sd);
+            let e = y - self.offset - f;
+            z2[i] = e * e * w;
+            if z2[i] > cut2 {
+                // Huber: weight × 3 / z; the square root only for outliers.
+                w *= huber * self.scale / z2[i].sqrt();
+            }
+            *weight = w;
+            info.add_outer(&g, w);
+            for k in 0..P {
+                gradient[k] += w * g[k] * e;
+                shift[k] += w * g[k];
+            }
+            sse += w * e * e;
         }
-        *weight = w;
-        info.add_outer(&g, w);
         for k in 0..P {
-            gradient[k] += w * g[k] * e;
-            shift[k] += w * g[k];
+            info.0[k][k] += self.prior.info[k];
+            gradient[k] += self.prior.info[k] * (self.prior.mean[k] - theta[k]);
         }
-        sse += w * e * e;
+        Normal {
+            info,
+            gradient,
+            shift,
+            objective: sse + self.prior.penalty(theta),
+        }
     }
-    for k in 0..P {
-        info.0[k][k] += prior.info[k];
-        gradient[k] += prior.info[k] * (prior.mean[k] - theta[k]);
-    }
-    Normal {
-        info,
-        gradient,
-        shift,
-        objective: sse + prior.penalty(theta),
+
+    /// Weighted sum of squares at θ with fixed weights, prior included.
+    pub(crate) fn objective<F: OnlineFamily<T, P>>(&self, theta: &[T; P], weights: &[T; N]) -> T {
+        let curve = F::from_theta(theta);
+        let mut sse = T::ZERO;
+        for (i, &w) in weights.iter().enumerate().take(self.history.len()) {
+            let (mean, y, c) = self.history.slot(i);
+            let (first, last) = self.history.span(i);
+            let e = y - self.offset - curve.slot(mean, first, last, c, self.panels[i]).0;
+            sse += w * e * e;
+        }
+        sse + self.prior.penalty(theta)
     }
 }
 
@@ -402,26 +426,6 @@ pub(crate) fn panels<T: Real, F: OnlineFamily<T, P>, const P: usize, const N: us
         *p = curve.panels(mean, first, last, c);
     }
     out
-}
-
-/// Weighted sum of squares at θ with fixed weights, prior included.
-pub(crate) fn objective<T: Real, F: OnlineFamily<T, P>, const P: usize, const N: usize>(
-    history: &History<T, N>,
-    theta: &[T; P],
-    prior: &Prior<T, P>,
-    offset: T,
-    panels: &[u8; N],
-    weights: &[T; N],
-) -> T {
-    let curve = F::from_theta(theta);
-    let mut sse = T::ZERO;
-    for (i, &w) in weights.iter().enumerate().take(history.len()) {
-        let (mean, y, c) = history.slot(i);
-        let (first, last) = history.span(i);
-        let e = y - offset - curve.slot(mean, first, last, c, panels[i]).0;
-        sse += w * e * e;
-    }
-    sse + prior.penalty(theta)
 }
 
 #[cfg(test)]

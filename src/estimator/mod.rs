@@ -74,7 +74,7 @@ pub use estimate::{BlankSource, Estimate, Measured, Outcome, Rejection};
 use estimate::widen_by as widen;
 
 use config::{MAX_HELD, NoiseModel};
-use fit::{Prior, Sym, accumulate, objective, panels, robust_sse, saturate};
+use fit::{Prior, Sym, panels, robust_sse, saturate};
 use history::History;
 use noise::NoiseLearner;
 
@@ -681,29 +681,23 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         iterations: u8,
         offset: T,
     ) -> ([T; P], T, fit::Normal<T, P>, [T; N]) {
-        let prior = self.prior();
         let mut weights = [T::ZERO; N];
         let mut z2 = [T::ZERO; N];
-        let scale = self.noise_scale2.max(T::from_f64(0.01)).sqrt();
         // Each reading starts from a moderate damping: a damping left high by
         // earlier failed trials would otherwise shrink every step below what
         // the objective can resolve, and the fit would freeze.
         damping = damping.min(T::ONE);
-        let noise = self.noise;
-        // Panels are counted once, at the starting θ, for every pass.
-        let panels = panels::<T, F, P, N>(&self.history, &F::from_theta(&theta));
+        let pass = fit::Pass {
+            history: &self.history,
+            noise: self.noise,
+            prior: self.prior(),
+            scale: self.noise_scale2.max(T::from_f64(0.01)).sqrt(),
+            offset,
+            // Panels are counted once, at the starting θ, for every pass.
+            panels: panels::<T, F, P, N>(&self.history, &F::from_theta(&theta)),
+        };
         let normal_at = |theta: &[T; P], weights: &mut [T; N], z2: &mut [T; N]| {
-            accumulate::<T, F, P, N>(
-                &self.history,
-                &noise,
-                theta,
-                &prior,
-                scale,
-                offset,
-                &panels,
-                weights,
-                z2,
-            )
+            pass.normal::<F>(theta, weights, z2)
         };
         let mut normal = normal_at(&theta, &mut weights, &mut z2);
         let ln_rate_max = self.ln_rate_max();
@@ -725,14 +719,7 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
                     trial[i] += step[i];
                 }
                 F::clamp(&mut trial, ln_rate_max);
-                let value = objective::<T, F, P, N>(
-                    &self.history,
-                    &trial,
-                    &prior,
-                    offset,
-                    &panels,
-                    &weights,
-                );
+                let value = pass.objective::<F>(&trial, &weights);
                 if value <= current {
                     moving = current - value > T::from_f64(0.01) * current;
                     theta = trial;
@@ -894,10 +881,7 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         let k = curve.capacity();
         let mut g_k = [T::ZERO; P];
         g_k[0] = k;
-        let capacity = widen(
-            measured(k, &g_k),
-            shadow.map(|(c, _)| c.capacity() - k),
-        );
+        let capacity = widen(measured(k, &g_k), shadow.map(|(c, _)| c.capacity() - k));
         let published = self.capacity_published();
         let (rate, g_rate, _) = curve.max_specific_rate(&theta);
         let rate = if rate > T::ZERO { rate } else { T::EPSILON };
@@ -923,9 +907,8 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         let lag = curve
             .tangent_lag(&theta)
             .map(|(value, g)| {
-                let spread = shadow.and_then(|(c, _)| {
-                    c.tangent_lag(&self.shadow_theta).map(|(l, _)| l - value)
-                });
+                let spread = shadow
+                    .and_then(|(c, _)| c.tangent_lag(&self.shadow_theta).map(|(l, _)| l - value));
                 let lag = widen(measured(value, &g), spread);
                 // One sd along the lag parameter, re-solved (see
                 // `OnlineFamily::LAG_INDEX`), when that says more.

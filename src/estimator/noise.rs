@@ -84,8 +84,8 @@ impl<T: Real> NoiseLearner<T> {
         let (l0, l1) = (ridge * self.s00, ridge * self.s11);
         // Ridge target: the configured split at the data's own level.
         let level = self.r0 / self.s00.max(T::EPSILON);
-        let config_var_ref = config.floor * config.floor
-            + config.fraction * config.fraction * y_ref * y_ref;
+        let config_var_ref =
+            config.floor * config.floor + config.fraction * config.fraction * y_ref * y_ref;
         let c = if config_var_ref > T::ZERO {
             (level / config_var_ref).max(T::ZERO)
         } else {

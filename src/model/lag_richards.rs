@@ -160,8 +160,9 @@ impl<T: Real> LagRichards<T> {
         if !(phi(T::ZERO) > T::ZERO) {
             return T::ZERO;
         }
-        self.bracket(phi)
-            .map_or(T::ZERO, |hi| bisect_decreasing(T::ZERO, hi, SEARCH_STEPS, phi))
+        self.bracket(phi).map_or(T::ZERO, |hi| {
+            bisect_decreasing(T::ZERO, hi, SEARCH_STEPS, phi)
+        })
     }
 }
 
@@ -307,11 +308,8 @@ impl<T: Real> OnlineFamily<T, 5> for LagRichards<T> {
         let t = bisect_decreasing(T::ZERO, hi, SEARCH_STEPS, psi);
         let (a, s) = self.a_and_s(t);
         let nu = self.shape;
-        let dpsi_dt = -(T::ONE + nu)
-            * self.rate_per_h
-            * a
-            * s
-            * ((T::ONE - a) + nu * a * (T::ONE - s));
+        let dpsi_dt =
+            -(T::ONE + nu) * self.rate_per_h * a * s * ((T::ONE - a) + nu * a * (T::ONE - s));
         let dpsi = numeric_gradient::<T, Self, 5>(theta, |c| psi_of(c, t));
         let mut gradient = [T::ZERO; 5];
         if dpsi_dt < T::ZERO {
@@ -342,7 +340,7 @@ impl<T: Real> OnlineFamily<T, 5> for LagRichards<T> {
     }
 
     /// Weak priors that keep the curve a logistic until the data say
-    /// otherwise: ln K ~ N(ln(2 y_max), 2²) as for the logistic (it keeps
+    /// otherwise: ln K ~ N(ln(2 `y_max`), 2²) as for the logistic (it keeps
     /// the fit off the K → ∞ ridge before the inflection);
     /// ln ν ~ N(0, 0.7²) (ν within a factor of 4 either way at 2 sd);
     /// c ~ N(ln 0.05, 2.5²), c ≈ ln h₀ for small h₀: "no lag unless the data
@@ -422,11 +420,18 @@ mod tests {
                 let d = (LagRichards::from_theta(&up).value(t)
                     - LagRichards::from_theta(&down).value(t))
                     / (2.0 * h);
-                assert!((d - g[i]).abs() < 1e-6 * (1.0 + f), "t {t} i {i}: {d} vs {}", g[i]);
+                assert!(
+                    (d - g[i]).abs() < 1e-6 * (1.0 + f),
+                    "t {t} i {i}: {d} vs {}",
+                    g[i]
+                );
             }
             let h = 1e-4;
             let d2 = (curve.value(t + h) - 2.0 * f + curve.value(t - h)) / (h * h);
-            assert!((d2 - f2).abs() < 1e-5 * (1.0 + f2.abs()), "t {t}: {d2} vs {f2}");
+            assert!(
+                (d2 - f2).abs() < 1e-5 * (1.0 + f2.abs()),
+                "t {t}: {d2} vs {f2}"
+            );
             let rate = (curve.value(t + h).ln() - curve.value(t - h).ln()) / (2.0 * h);
             if t > 0.0 {
                 assert!((rate - curve.specific_rate_per_h(t)).abs() < 1e-6);

@@ -245,7 +245,7 @@ impl<T: Real> OnlineFamily<T, 3> for Logistic<T> {
         ]
     }
 
-    /// ln K ~ N(ln(2 y_max), 2²): a factor of e² ≈ 7.4 either way. It only
+    /// ln K ~ N(ln(2 `y_max`), 2²): a factor of e² ≈ 7.4 either way. It only
     /// matters while the data cannot place the capacity (before the
     /// inflection), where it keeps the fit off the ridge K → ∞.
     fn prior(y_max: T) -> ([T; 3], [T; 3]) {

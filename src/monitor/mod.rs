@@ -520,7 +520,11 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         }
     }
 
-    fn targets_due<const P: usize, F: OnlineFamily<T, P>>(&mut self, time_h: T, e: &Estimate<T, P, F>) {
+    fn targets_due<const P: usize, F: OnlineFamily<T, P>>(
+        &mut self,
+        time_h: T,
+        e: &Estimate<T, P, F>,
+    ) {
         let level_now = self.median_recent();
         let lead = self.config.alert_lead_h;
         let mut fired: [(bool, bool, T); TARGETS] = [(false, false, T::ZERO); TARGETS];
