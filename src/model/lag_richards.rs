@@ -96,6 +96,24 @@ impl<T: Real> LagRichards<T> {
         self.rate_per_h
     }
 
+    /// The midpoint τ, hours on the adjusted time scale.
+    #[must_use]
+    pub fn midpoint_h(&self) -> T {
+        self.midpoint_h
+    }
+
+    /// θ = (ln K, ln μ, τ, ln ν, c), the estimator's parameters.
+    #[must_use]
+    pub fn theta(&self) -> [T; 5] {
+        [
+            self.capacity.ln(),
+            self.rate_per_h.ln(),
+            self.midpoint_h,
+            self.shape.ln(),
+            self.c,
+        ]
+    }
+
     /// Baranyi's h₀ = μ λ (unitless).
     #[must_use]
     pub fn h0(&self) -> T {
