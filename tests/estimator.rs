@@ -666,3 +666,67 @@ fn carlson_yeast_with_the_shape_family() {
         "{nu:?}"
     );
 }
+
+/// The blank the way labs get it, on an invented plate well: 0.045 OD of
+/// medium under a culture starting at 0.01 OD (capacity 1.2 OD, 0.8 per h).
+/// Read before inoculation (a blank phase of twelve readings), the blank
+/// gives μmax to within a few per cent with an honest interval, as a
+/// configured blank does; left unknown, the rate comes out low (the blank
+/// flattens ln y) but its interval widens to hold the truth instead of
+/// being confidently wrong. A blank reading after the culture started is
+/// refused. Truth: the logistic's μmax from its first reading, r (1 − y₀/K)
+/// (REFERENCES.md).
+#[test]
+fn blank_phase_configured_and_unknown_blank() {
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal};
+    let truth = Logistic::<f64>::from_initial(1.2, 0.8, 0.01).unwrap();
+    let mu = logistic_mu_max(&truth, 0.0);
+    let stream = Stream {
+        blank: 0.045,
+        end_h: 14.0,
+        ..Stream::default()
+    };
+    let (mut covered_unknown, mut covered_phase, mut covered_configured) = (0, 0, 0);
+    let (mut err_phase, mut err_unknown) = (0.0_f64, 0.0_f64);
+    let runs = 12;
+    for seed in 0..runs {
+        let readings = stream.generate(&truth, seed);
+        let mut rng = rand::rngs::StdRng::seed_from_u64(100 + seed);
+        let noise = Normal::new(0.0, 0.003).unwrap();
+        let run = |est: &mut Estimator<f32>| {
+            for r in &readings {
+                est.update(r.time_h as f32, r.value as f32);
+            }
+            est.estimate().unwrap().rate_per_h
+        };
+        let mut phase = Estimator::<f32>::new(EstimatorConfig::new());
+        for _ in 0..12 {
+            let b = phase.blank_reading((0.045 + noise.sample(&mut rng)) as f32).unwrap();
+            assert!(b.sd > 0.0);
+        }
+        let configured = EstimatorConfig::new().blank(0.045).unwrap();
+        let r_phase = run(&mut phase);
+        let r_conf = run(&mut Estimator::<f32>::new(configured));
+        let r_unknown = run(&mut Estimator::<f32>::new(EstimatorConfig::new()));
+        assert_eq!(
+            phase.estimate().unwrap().blank_source(),
+            plateau::BlankSource::Measured
+        );
+        let holds = |m: Measured<f32>| (f64::from(m.value) - mu).abs() <= 1.96 * f64::from(m.sd);
+        covered_phase += u32::from(holds(r_phase));
+        covered_configured += u32::from(holds(r_conf));
+        covered_unknown += u32::from(holds(r_unknown));
+        err_phase = err_phase.max((f64::from(r_phase.value) / mu - 1.0).abs());
+        err_unknown = err_unknown.max((f64::from(r_unknown.value) / mu - 1.0).abs());
+        // After the culture started, a blank reading is refused.
+        assert!(phase.blank_reading(0.045).is_err());
+    }
+    eprintln!(
+        "blank phase: worst μmax error {err_phase:.3}, covered {covered_phase}/{runs}; \
+         configured covered {covered_configured}/{runs}; unknown: worst {err_unknown:.3}, covered {covered_unknown}/{runs}"
+    );
+    assert!(err_phase < 0.06, "blank phase μmax off by {err_phase}");
+    assert!(covered_phase >= 10 && covered_configured >= 10);
+    assert!(covered_unknown >= 10, "unknown blank covered {covered_unknown}/{runs}");
+}
