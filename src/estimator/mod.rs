@@ -89,6 +89,9 @@ const EXTRA_ITERATIONS: u8 = 6;
 /// Readings the innovation-based noise scale averages over (exponential
 /// weighting), and the count it needs before it is used.
 const INNOVATION_MEMORY: u32 = 64;
+
+/// Accepted readings between two shadow fits (unknown blank).
+const SHADOW_EVERY: u32 = 8;
 const MIN_INNOVATIONS: u32 = 16;
 
 /// The online growth-curve estimator. `T` is the float type (`f32` on the
@@ -703,7 +706,7 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         let ln_rate_max = self.ln_rate_max();
         let mut moving = true;
         for iteration in 0..iterations.saturating_add(EXTRA_ITERATIONS) {
-            if iteration >= iterations && !moving {
+            if iteration >= 1 && !moving {
                 break;
             }
             let current = normal.objective;
@@ -743,7 +746,12 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
             self.solve(self.theta, self.damping, iterations, T::ZERO);
         self.theta = theta;
         self.damping = damping;
-        self.shadow_fit(iterations);
+        // The shadow fit gives a spread, which moves slowly: every
+        // SHADOW_EVERY accepted readings is enough, and keeps its cost to a
+        // fraction of a refit.
+        if !self.shadow_ready || self.accepted % SHADOW_EVERY == 0 {
+            self.shadow_fit(iterations);
+        }
         self.curve = F::from_theta(&self.theta);
         // The slots' own residual scale (robust, over slots − P degrees of
         // freedom), when there are enough slots.
