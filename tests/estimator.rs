@@ -149,13 +149,18 @@ fn bubbles_are_rejected_and_do_not_move_the_estimate() {
         sb.covered_r,
         sb.runs
     );
-    // Measured 1.33× the clean capacity RMSE (0.0035 against 0.0027 OD).
-    assert!(rmse(sb.sq_k, sb.runs) < 1.5 * rmse(sa.sq_k, sa.runs));
+    // Measured 1.26× the clean capacity RMSE (0.0033 against 0.0026 OD).
+    assert!(rmse(sb.sq_k, sb.runs) < 1.4 * rmse(sa.sq_k, sa.runs));
     // μmax rests on the early, low readings, where a 0.3 OD bubble that
     // slips in before the first fit weighs most: measured 1.9× the clean
     // RMSE (0.026 against 0.014 per h), with its intervals still honest.
     assert!(rmse(sb.sq_r, sb.runs) < 2.2 * rmse(sa.sq_r, sa.runs));
     assert!(sb.covered_k >= 34 && sb.covered_r >= 34);
+    eprintln!(
+        "logistic family, rate RMSE clean {:.5} bubbles {:.5}",
+        rmse(a.sq_r, a.runs),
+        rmse(b.sq_r, b.runs)
+    );
     assert!(
         rmse(b.sq_k, b.runs) < 1.3 * rmse(a.sq_k, a.runs),
         "capacity RMSE with bubbles {:.5} vs clean {:.5}",
