@@ -15,7 +15,7 @@ fn read(text: &[u8]) -> Result<Log, LogError> {
 fn rows(log: &Log) -> Vec<(u64, f64, f64)> {
     log.rows
         .iter()
-        .map(|r| (r.line, r.time_h, r.value))
+        .map(|r| (r.line, r.time_h, r.value()))
         .collect()
 }
 

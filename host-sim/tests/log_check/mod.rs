@@ -30,8 +30,9 @@ pub fn check_log_bytes(data: &[u8]) {
     for (time_col, value_col) in [("time_h", "od"), ("a", "b")] {
         let strict = LogOptions {
             time_col: time_col.into(),
-            value_col: value_col.into(),
+            value_cols: vec![value_col.into()],
             skip_bad_rows: false,
+            ..LogOptions::default()
         };
         let skipping = LogOptions {
             skip_bad_rows: true,
@@ -56,7 +57,7 @@ pub fn check_log_bytes(data: &[u8]) {
 
 fn bits(rows: &[host_sim::log::LogRow]) -> Vec<(u64, u64, u64)> {
     rows.iter()
-        .map(|r| (r.line, r.time_h.to_bits(), r.value.to_bits()))
+        .map(|r| (r.line, r.time_h.to_bits(), r.value().to_bits()))
         .collect()
 }
 
