@@ -284,7 +284,9 @@ pub enum LogError {
         line: u64,
     },
     /// A requested column name appears more than once in the header.
-    #[error("line {line}: the header names column {name:?} {count} times; rename them so that one can be chosen")]
+    #[error(
+        "line {line}: the header names column {name:?} {count} times; rename them so that one can be chosen"
+    )]
     DuplicateColumn {
         /// The column asked for.
         name: String,
@@ -851,7 +853,10 @@ impl<R: BufRead> LogReader<R> {
                             });
                         }
                     }
-                } else if parse_elapsed(text).or_else(|| parse_duration(text)).is_some() {
+                } else if parse_elapsed(text)
+                    .or_else(|| parse_duration(text))
+                    .is_some()
+                {
                     TimeFormat::Elapsed
                 } else if let Ok(t) = text.parse::<jiff::Timestamp>() {
                     TimeFormat::Instant(t)
@@ -966,7 +971,8 @@ impl<R: BufRead> LogReader<R> {
                 .map(|t| clean(t).to_owned())
                 .map_err(|_| format!("{name}: bytes that are not UTF-8"))
         };
-        let time_text = text_of(&self.splitter, self.time_idx, &self.options.time_col).map_err(Ok)?;
+        let time_text =
+            text_of(&self.splitter, self.time_idx, &self.options.time_col).map_err(Ok)?;
         let mut cells = Vec::with_capacity(self.value_idx.len());
         let mut reasons = Vec::new();
         for k in 0..self.value_idx.len() {
@@ -1241,9 +1247,9 @@ impl Outputs {
                     format!("cannot create a temporary file in {}", dir.display())
                 })?)
             }
-            Target::Stdout | Target::InPlace(_) => Staging::Anonymous(
-                tempfile::tempfile().context("cannot create a temporary file")?,
-            ),
+            Target::Stdout | Target::InPlace(_) => {
+                Staging::Anonymous(tempfile::tempfile().context("cannot create a temporary file")?)
+            }
         };
         self.staged.push((
             flag.to_owned(),
@@ -1366,4 +1372,335 @@ pub fn is_broken_pipe(error: &anyhow::Error) -> bool {
         e.downcast_ref::<std::io::Error>()
             .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn read(text: &str) -> Result<Log, LogError> {
+        read_log(text.as_bytes(), &LogOptions::default())
+    }
+
+    fn with(f: impl FnOnce(&mut LogOptions)) -> LogOptions {
+        let mut o = LogOptions::default();
+        f(&mut o);
+        o
+    }
+
+    fn times(log: &Log) -> Vec<f64> {
+        log.rows.iter().map(|r| r.time_h).collect()
+    }
+
+    #[test]
+    fn plain_log() {
+        let log = read("time_h,od\n0,0.05\n0.5,0.07\n").unwrap();
+        assert_eq!(log.rows.len(), 2);
+        assert_eq!(
+            log.rows[1],
+            LogRow {
+                line: 3,
+                time_h: 0.5,
+                cells: vec![Cell::Value(0.07)],
+                blank: None,
+            }
+        );
+        assert!(log.skipped.is_empty());
+    }
+
+    #[test]
+    fn bom_crlf_quotes_whitespace_and_other_columns() {
+        let text = "\u{feff}sample, od ,temp_c, time_h \r\n\
+                    a, \"0.10\" ,37, 1.5\r\n\
+                    \"b,c\",\" 0.2 \",37,\"2.0\"\r\n";
+        let log = read(text).unwrap();
+        assert_eq!(log.rows.len(), 2);
+        assert_eq!((log.rows[0].time_h, log.rows[0].value()), (1.5, 0.10));
+        assert_eq!((log.rows[1].time_h, log.rows[1].value()), (2.0, 0.2));
+        assert_eq!(log.rows[1].line, 3);
+    }
+
+    #[test]
+    fn bad_rows_name_their_lines() {
+        let text = "time_h,od\n0,0.1\n1,abc\n2,0.3\n,0.4\n4\n5,0.6\n";
+        let err = read(text).unwrap_err();
+        let LogError::BadRows(rows) = &err else {
+            panic!("{err:?}")
+        };
+        let lines: Vec<u64> = rows.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [3, 5, 6]);
+        let msg = err.to_string();
+        assert!(msg.contains("lines 3, 5, 6"), "{msg}");
+        assert!(msg.contains("\"abc\""), "{msg}");
+        let log = read_log(text.as_bytes(), &with(|o| o.skip_bad_rows = true)).unwrap();
+        let kept: Vec<u64> = log.rows.iter().map(|r| r.line).collect();
+        assert_eq!(kept, [2, 4, 7]);
+        assert_eq!(log.skipped.len(), 3);
+    }
+
+    #[test]
+    fn parseable_but_invalid_values_are_kept() {
+        let log = read("time_h,od\n0,NaN\n1,inf\n2,-0.5\n1.5,0.2\n").unwrap();
+        assert_eq!(log.rows.len(), 4);
+        assert!(log.rows[0].value().is_nan());
+        assert_eq!(log.rows[1].value(), f64::INFINITY);
+        assert_eq!(log.rows[2].value(), -0.5);
+    }
+
+    #[test]
+    fn blank_lines_crlf_and_lone_cr_keep_line_numbers_true() {
+        let lines = |log: &Log| log.rows.iter().map(|r| r.line).collect::<Vec<_>>();
+        assert_eq!(
+            lines(&read("time_h,od\n\n0,0.1\n\n1,0.2\n").unwrap()),
+            [3, 5]
+        );
+        assert_eq!(lines(&read("time_h,od\r0,0.1\r1,0.2\r").unwrap()), [2, 3]);
+        let LogError::BadRows(rows) = read("time_h,od\r\n0,0.1\r\n\r\n1,x\r\n").unwrap_err() else {
+            panic!()
+        };
+        assert_eq!(rows[0].line, 4);
+    }
+
+    #[test]
+    fn time_units_from_the_header() {
+        use TimeUnit::*;
+        for (name, unit) in [
+            ("time_h", Some(Hours)),
+            ("Time (min)", Some(Minutes)),
+            ("t [s]", Some(Seconds)),
+            ("elapsed days", Some(Days)),
+            ("hours", Some(Hours)),
+            ("t/min", Some(Minutes)),
+            ("Time", None),
+            ("t", None),
+            ("m", None),
+            ("time (a.u.)", None),
+        ] {
+            assert_eq!(TimeUnit::from_header(name), unit, "{name}");
+        }
+    }
+
+    #[test]
+    fn numeric_times_are_converted_and_an_unknown_unit_is_an_error() {
+        let o = with(|o| o.time_col = "Time (min)".into());
+        let log = read_log("Time (min),od\n0,0.1\n90,0.2\n".as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 1.5]);
+        assert!(
+            log.notes.iter().any(|n| n.contains("minutes")),
+            "{:?}",
+            log.notes
+        );
+        // No unit anywhere: an error that says how to give one.
+        let o = with(|o| o.time_col = "t".into());
+        let err = read_log("t,od\n0,0.1\n".as_bytes(), &o).unwrap_err();
+        assert!(
+            matches!(err, LogError::TimeUnitUnknown { line: 2, .. }),
+            "{err:?}"
+        );
+        assert!(err.to_string().contains("--time-unit"), "{err}");
+        // The flag gives it, and wins over the header.
+        let o = with(|o| {
+            o.time_col = "t".into();
+            o.time_unit = Some(TimeUnit::Seconds);
+        });
+        let log = read_log("t,od\n0,0.1\n7200,0.2\n".as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 2.0]);
+        let o = with(|o| o.time_unit = Some(TimeUnit::Days));
+        let log = read_log("time_h,od\n0.5,0.1\n".as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [12.0]);
+        assert!(log.notes[1].contains("over the hours"), "{:?}", log.notes);
+    }
+
+    #[test]
+    fn elapsed_times_and_iso_date_times() {
+        assert_eq!(parse_elapsed("00:30:00"), Some(0.5));
+        assert_eq!(parse_elapsed("1.02:00:00"), Some(26.0));
+        assert_eq!(parse_elapsed("36:00:36"), Some(36.01));
+        assert_eq!(parse_elapsed("00:00:01.8"), Some(0.0005));
+        for bad in [
+            "00:60:00",
+            "1:2:3",
+            "00:30",
+            "a.01:00:00",
+            "01:00:00:00",
+            "",
+        ] {
+            assert_eq!(parse_elapsed(bad), None, "{bad}");
+        }
+        let o = with(|o| o.time_col = "Time".into());
+        let log = read_log(
+            "Time,od\n00:00:00,0.1\n00:15:00,0.1\n1.00:00:00,0.2\n".as_bytes(),
+            &o,
+        )
+        .unwrap();
+        assert_eq!(times(&log), [0.0, 0.25, 24.0]);
+        let log = read_log("Time,od\nPT0S,0.1\nPT1H30M,0.2\n".as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 1.5]);
+        // Date-times: hours since the first, across midnight and a month end.
+        let text =
+            "Time,od\n2026-03-31T23:45:00,0.1\n2026-04-01 00:15:00,0.1\n2026-04-01T12:45,0.2\n";
+        let log = read_log(text.as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 0.5, 13.0]);
+        assert!(
+            log.notes.iter().any(|n| n.contains("ISO 8601")),
+            "{:?}",
+            log.notes
+        );
+        // With offsets: instants, so a change of offset is no jump.
+        let text = "Time,od\n2026-03-29T00:30:00+01:00,0.1\n2026-03-29T03:30:00+02:00,0.1\n";
+        let log = read_log(text.as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 2.0]);
+        // A row in another style is a bad row, not a guess.
+        let err = read_log(
+            "Time,od\n00:00:00,0.1\n2026-04-01T00:00,0.1\n".as_bytes(),
+            &o,
+        )
+        .unwrap_err();
+        assert!(err.to_string().contains("line 3"), "{err}");
+        // Day-first dates are not ISO 8601: refused, never guessed.
+        let err = read_log("Time,od\n01.04.2026 00:00,0.1\n".as_bytes(), &o).unwrap_err();
+        assert!(err.to_string().contains("ISO 8601"), "{err}");
+    }
+
+    #[test]
+    fn preamble_lines_semicolons_and_decimal_commas() {
+        let text = "Reader: bench unit 2 (invented)\nRun;42\n\nTime (min);OD;note\n0;0,100;a\n30;0,150;b\n";
+        let o = with(|o| o.time_col = "Time (min)".into());
+        let o = LogOptions {
+            value_cols: vec!["OD".into()],
+            ..o
+        };
+        let log = read_log(text.as_bytes(), &o).unwrap();
+        assert_eq!(times(&log), [0.0, 0.5]);
+        assert_eq!(log.rows[1].value(), 0.15);
+        assert_eq!(log.rows[0].line, 5);
+        let notes = log.notes.join(" | ");
+        assert!(notes.contains("header on line 4"), "{notes}");
+        assert!(notes.contains("decimal comma"), "{notes}");
+        // Setting the decimal point refuses the commas.
+        let o = LogOptions {
+            decimal: Decimal::Point,
+            ..o
+        };
+        assert!(read_log(text.as_bytes(), &o).is_err());
+    }
+
+    #[test]
+    fn saturation_markers_and_blank_columns() {
+        let o = LogOptions {
+            value_cols: vec!["A1".into(), "A2".into()],
+            blank_cols: vec!["H1".into(), "H2".into()],
+            saturated_markers: vec!["OVER".into()],
+            ..LogOptions::default()
+        };
+        let text = "time_h,A1,A2,H1,H2\n0,0.1,0.2,0.04,0.06\n1, over ,0.3,0.05,0.05\n";
+        let log = read_log(text.as_bytes(), &o).unwrap();
+        assert_eq!(log.rows[0].cells, [Cell::Value(0.1), Cell::Value(0.2)]);
+        assert_eq!(log.rows[1].cells, [Cell::Saturated, Cell::Value(0.3)]);
+        assert!((log.rows[0].blank.unwrap() - 0.05).abs() < 1e-12);
+        // A marker is not a number elsewhere.
+        let err = read_log("time_h,A1,A2,H1,H2\n0,0.1,0.2,OVER,0.06\n".as_bytes(), &o).unwrap_err();
+        assert!(err.to_string().contains("H1"), "{err}");
+    }
+
+    #[test]
+    fn a_too_long_line_is_a_bad_row_and_not_kept() {
+        let mut text = b"time_h,od\n0,0.1\n".to_vec();
+        text.extend(std::iter::repeat_n(b'9', MAX_LINE_BYTES + 10));
+        text.extend_from_slice(b"\n2,0.3\n");
+        let log = read_log(&text[..], &with(|o| o.skip_bad_rows = true)).unwrap();
+        assert_eq!(times(&log), [0.0, 2.0]);
+        assert_eq!(log.skipped[0].line, 3);
+        assert!(log.skipped[0].reason.len() < 200);
+    }
+
+    #[test]
+    fn atomic_write_replaces_only_on_success() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        write_atomically(&path, |w| Ok(w.write_all(b"first\n")?)).unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "first\n");
+        let err = write_atomically(&path, |w| {
+            w.write_all(b"half of a ")?;
+            anyhow::bail!("generator failed")
+        })
+        .unwrap_err();
+        assert_eq!(err.to_string(), "generator failed");
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "first\n");
+        let new = dir.path().join("new.csv");
+        assert!(write_atomically(&new, |_| anyhow::bail!("no")).is_err());
+        assert!(!new.exists());
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
+        assert_eq!(names, ["out.csv"]);
+        let err = write_atomically(&dir.path().join("no/such/out.csv"), |_| Ok(())).unwrap_err();
+        assert!(format!("{err:#}").contains("temporary file"));
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn atomic_write_gives_readable_files_and_keeps_modes() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        write_atomically(&path, |w| Ok(w.write_all(b"x")?)).unwrap();
+        let mode = |p: &Path| std::fs::metadata(p).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode(&path), 0o644);
+        std::fs::set_permissions(&path, std::fs::Permissions::from_mode(0o600)).unwrap();
+        write_atomically(&path, |w| Ok(w.write_all(b"y")?)).unwrap();
+        assert_eq!(mode(&path), 0o600);
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "y");
+    }
+
+    #[test]
+    fn outputs_refuse_the_input_and_each_other() {
+        let dir = tempfile::tempdir().unwrap();
+        let input = dir.path().join("log.csv");
+        std::fs::write(&input, "time_h,od\n").unwrap();
+        let mut outputs = Outputs::new(Some(&input));
+        let err = outputs.stage("--out", &input).unwrap_err();
+        assert!(err.to_string().contains("is the input"), "{err}");
+        // The same file by another spelling, and by a hard link.
+        let other = dir.path().join(".").join("log.csv");
+        assert!(outputs.stage("--out", &other).is_err());
+        let link = dir.path().join("link.csv");
+        std::fs::hard_link(&input, &link).unwrap();
+        assert!(outputs.stage("--out", &link).is_err());
+        let a = dir.path().join("a.csv");
+        outputs.stage("--out", &a).unwrap();
+        let err = outputs.stage("--summary", &a).unwrap_err();
+        assert!(err.to_string().contains("same file"), "{err}");
+        outputs.stage("--summary", Path::new("-")).unwrap();
+        assert!(outputs.stage("--plot", Path::new("-")).is_err());
+        // Dropped without commit: nothing is left.
+        drop(outputs);
+        let mut names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().into_string().unwrap())
+            .collect();
+        names.sort();
+        assert_eq!(names, ["link.csv", "log.csv"]);
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_pipe_is_written_in_place_not_replaced() {
+        use std::os::unix::fs::FileTypeExt;
+        let dir = tempfile::tempdir().unwrap();
+        let fifo = dir.path().join("pipe");
+        let made = std::process::Command::new("mkfifo").arg(&fifo).status();
+        if !made.is_ok_and(|s| s.success()) {
+            eprintln!("mkfifo not available; skipped");
+            return;
+        }
+        let reader = {
+            let fifo = fifo.clone();
+            std::thread::spawn(move || std::fs::read_to_string(fifo).unwrap())
+        };
+        write_atomically(&fifo, |w| Ok(w.write_all(b"through the pipe\n")?)).unwrap();
+        assert_eq!(reader.join().unwrap(), "through the pipe\n");
+        assert!(std::fs::metadata(&fifo).unwrap().file_type().is_fifo());
+    }
 }

@@ -276,7 +276,9 @@ fn run() -> Result<()> {
                 summary,
                 plot,
             };
-            let style = replay::PlotStyle { log_scale: plot_log };
+            let style = replay::PlotStyle {
+                log_scale: plot_log,
+            };
             let result = replay::run_files(&paths, &options, &style)?;
             for note in &result.notes {
                 eprintln!("note: {note}");

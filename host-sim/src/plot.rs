@@ -123,7 +123,11 @@ fn logged(data: &PlotData) -> PlotData {
         .chain(data.estimates.iter().flat_map(|e| e.value.iter().copied()))
         .filter(|y| y.is_finite() && *y > 0.0)
         .fold(f64::INFINITY, f64::min);
-    let floor = if positive.is_finite() { positive / 2.0 } else { 1e-3 };
+    let floor = if positive.is_finite() {
+        positive / 2.0
+    } else {
+        1e-3
+    };
     let lg = |y: f64| y.max(floor).log10();
     let mut out = data.clone();
     for p in &mut out.readings {
@@ -680,7 +684,10 @@ fn draw_history(
             .chain(seg.iter().rev().map(|&(t, v, sd)| (t, clip(v - Z95 * sd))))
             .collect();
         chart
-            .draw_series(std::iter::once(Polygon::new(outline, blue.mix(0.25).filled())))
+            .draw_series(std::iter::once(Polygon::new(
+                outline,
+                blue.mix(0.25).filled(),
+            )))
             .map_err(draw_err)?;
         let line = chart
             .draw_series(LineSeries::new(
@@ -689,9 +696,10 @@ fn draw_history(
             ))
             .map_err(draw_err)?;
         if i == 0 {
-            line.label("online estimate (95 % band)").legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], blue.stroke_width(2))
-            });
+            line.label("online estimate (95 % band)")
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 20, y)], blue.stroke_width(2))
+                });
         }
     }
     if let Some(r) = reference.filter(|r| r.is_finite()) {
@@ -748,10 +756,7 @@ fn small_multiples_svg(replay: &crate::replay::Replay, log_scale: bool) -> Resul
     let (xpad, ypad) = (((x1 - x0) * 0.03).max(1e-3), ((y1 - y0) * 0.08).max(1e-3));
     let (x_range, y_range) = (x0 - xpad..x1 + xpad, y0 - ypad..y1 + ypad);
     #[allow(clippy::cast_possible_truncation)] // small counts
-    let (width, height) = (
-        PANEL.0 * cols as u32 + 20,
-        PANEL.1 * rows as u32 + 70,
-    );
+    let (width, height) = (PANEL.0 * cols as u32 + 20, PANEL.1 * rows as u32 + 70);
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (width, height)).into_drawing_area();
@@ -761,9 +766,7 @@ fn small_multiples_svg(replay: &crate::replay::Replay, log_scale: bool) -> Resul
             replay.source,
             if log_scale { " (log scale)" } else { "" }
         );
-        let root = root
-            .titled(&title, ("sans-serif", 15))
-            .map_err(draw_err)?;
+        let root = root.titled(&title, ("sans-serif", 15)).map_err(draw_err)?;
         let panels = root.margin(4, 4, 10, 10).split_evenly((rows, cols));
         let grey = RGBColor(90, 90, 90);
         let red = RGBColor(200, 30, 30);

@@ -479,7 +479,9 @@ fn configs(options: &ReplayOptions) -> Result<(EstimatorConfig<f32>, MonitorConf
     }
     let config = options.settings.config()?;
     if !log.blank_cols.is_empty() && options.settings.blank_od.is_some() {
-        bail!("give the blank either as a number (--blank) or as blank columns (--blank-col), not both");
+        bail!(
+            "give the blank either as a number (--blank) or as blank columns (--blank-col), not both"
+        );
     }
     if !log.saturated_markers.is_empty() && !config.ceiling_value().is_finite() {
         bail!(
@@ -743,8 +745,8 @@ pub fn run_files(paths: &Paths, options: &ReplayOptions, plot: &PlotStyle) -> Re
         .map(|p| outputs.stage("--plot", p))
         .transpose()?;
     let input = paths.input.as_path();
-    let reader =
-        open_log(input, &options.log).with_context(|| format!("cannot replay {}", input.display()))?;
+    let reader = open_log(input, &options.log)
+        .with_context(|| format!("cannot replay {}", input.display()))?;
     let result = {
         let mut writer = out.map(|i| std::io::BufWriter::with_capacity(1 << 16, outputs.file(i)));
         let result = replay(
@@ -758,9 +760,10 @@ pub fn run_files(paths: &Paths, options: &ReplayOptions, plot: &PlotStyle) -> Re
         result.source = if input.as_os_str() == "-" {
             "standard input".to_owned()
         } else {
-            input
-                .file_name()
-                .map_or_else(|| input.display().to_string(), |n| n.to_string_lossy().into_owned())
+            input.file_name().map_or_else(
+                || input.display().to_string(),
+                |n| n.to_string_lossy().into_owned(),
+            )
         };
         if let Some(mut w) = writer {
             w.flush().context("cannot write the per-reading CSV")?;
@@ -819,7 +822,10 @@ pub fn table(replay: &Replay) -> String {
             s.rejected.to_string(),
             pm(e.and_then(|e| e.capacity).map(|c| (c.value, c.sd)), 3),
             pm(e.map(|e| (e.rate_per_h.value, e.rate_per_h.sd)), 3),
-            pm(e.map(|e| (e.doubling_time_h.value, e.doubling_time_h.sd)), 2),
+            pm(
+                e.map(|e| (e.doubling_time_h.value, e.doubling_time_h.sd)),
+                2,
+            ),
             pm(e.and_then(|e| e.lag_h).map(|m| (m.value, m.sd)), 2),
             s.last
                 .as_ref()
