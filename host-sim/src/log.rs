@@ -158,6 +158,12 @@ pub struct LogOptions {
     /// Header names of the value columns (signal, OD units), one series
     /// each; at least one. Default `od`.
     pub value_cols: Vec<String>,
+    /// Every column of the header other than the time, blank and ignored
+    /// columns is a value column (after [`Self::value_cols`], which may then
+    /// be empty). Default off.
+    pub all_value_cols: bool,
+    /// Columns [`Self::all_value_cols`] leaves out. Default none.
+    pub ignore_cols: Vec<String>,
     /// Header names of medium-only (blank) columns; their mean at a reading
     /// is that reading's blank. Default none.
     pub blank_cols: Vec<String>,
@@ -180,6 +186,8 @@ impl Default for LogOptions {
         Self {
             time_col: "time_h".into(),
             value_cols: vec!["od".into()],
+            all_value_cols: false,
+            ignore_cols: Vec::new(),
             blank_cols: Vec::new(),
             skip_bad_rows: false,
             time_unit: None,
@@ -262,7 +270,7 @@ pub struct Log {
 #[non_exhaustive]
 pub enum LogError {
     /// The file could not be opened or read.
-    #[error("cannot read {path}: {source}")]
+    #[error("cannot read {path}")]
     Io {
         /// The file.
         path: PathBuf,
@@ -618,6 +626,7 @@ impl<R: BufRead> LogReader<R> {
             .chain(options.blank_cols.iter().map(String::as_str))
             .map(str::trim)
             .collect();
+        let mut options = options.clone();
         let delimiters: Vec<u8> = options
             .delimiter
             .map_or_else(|| DELIMITERS.to_vec(), |d| vec![d]);
@@ -682,6 +691,21 @@ impl<R: BufRead> LogReader<R> {
             });
         };
         let header_line = lines.number;
+        if options.all_value_cols {
+            let taken = |n: &String| {
+                n.is_empty()
+                    || wanted.contains(&n.as_str())
+                    || options.ignore_cols.iter().any(|i| i.trim() == n)
+            };
+            let mut more: Vec<String> = names.iter().filter(|n| !taken(n)).cloned().collect();
+            more.dedup();
+            options.value_cols.extend(more);
+        }
+        let wanted: Vec<&str> = std::iter::once(options.time_col.as_str())
+            .chain(options.value_cols.iter().map(String::as_str))
+            .chain(options.blank_cols.iter().map(String::as_str))
+            .map(str::trim)
+            .collect();
         for w in &wanted {
             let count = names.iter().filter(|n| n == w).count();
             if count > 1 {
@@ -713,8 +737,15 @@ impl<R: BufRead> LogReader<R> {
             time_format: None,
             decimal,
             decimal_line: 0,
-            options: options.clone(),
+            options,
         })
+    }
+
+    /// The value columns, in order (with [`LogOptions::all_value_cols`],
+    /// as found in the header).
+    #[must_use]
+    pub fn value_cols(&self) -> &[String] {
+        &self.options.value_cols
     }
 
     /// The header's line (1-based).

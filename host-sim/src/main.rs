@@ -71,8 +71,15 @@ enum Command {
         time_unit: Option<UnitArg>,
         /// Name of a value column (OD units); repeat for several series
         /// (plate wells, channels), replayed in parallel.
-        #[arg(long = "value-col", default_value = "od")]
+        #[arg(long = "value-col")]
         value_cols: Vec<String>,
+        /// Every column other than the time, blank and --ignore-col columns
+        /// is a value column (a plate: one series per well).
+        #[arg(long)]
+        all_value_cols: bool,
+        /// A column --all-value-cols leaves out; repeatable.
+        #[arg(long = "ignore-col")]
+        ignore_cols: Vec<String>,
         /// Name of a medium-only (blank) column; repeat for several. Their
         /// mean at each reading is subtracted from every series.
         #[arg(long = "blank-col")]
@@ -214,6 +221,8 @@ fn run() -> Result<()> {
             time_col,
             time_unit,
             value_cols,
+            all_value_cols,
+            ignore_cols,
             blank_cols,
             delimiter: delimiter_text,
             decimal,
@@ -246,7 +255,13 @@ fn run() -> Result<()> {
             let options = ReplayOptions {
                 log: LogOptions {
                     time_col,
-                    value_cols,
+                    value_cols: if value_cols.is_empty() && !all_value_cols {
+                        vec!["od".to_owned()]
+                    } else {
+                        value_cols
+                    },
+                    all_value_cols,
+                    ignore_cols,
                     blank_cols,
                     skip_bad_rows,
                     time_unit: time_unit.map(|u| match u {

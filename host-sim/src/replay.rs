@@ -462,7 +462,10 @@ fn configs(options: &ReplayOptions) -> Result<(EstimatorConfig<f32>, MonitorConf
         options.alert_lead_h
     );
     let log = &options.log;
-    ensure!(!log.value_cols.is_empty(), "no value column given");
+    ensure!(
+        log.all_value_cols || !log.value_cols.is_empty(),
+        "no value column given"
+    );
     let mut names: Vec<&str> = log
         .value_cols
         .iter()
@@ -507,11 +510,14 @@ pub fn replay<R: BufRead>(
     plot: bool,
 ) -> Result<Replay> {
     let (config, monitor) = configs(options)?;
-    let several = options.log.value_cols.len() > 1;
+    let columns = reader.value_cols().to_vec();
+    ensure!(
+        !columns.is_empty(),
+        "the header has no value column besides the time and blank columns"
+    );
+    let several = columns.len() > 1;
     let blank = f64::from(config.blank_value());
-    let mut series: Vec<Series> = options
-        .log
-        .value_cols
+    let mut series: Vec<Series> = columns
         .iter()
         .map(|name| Series::new(name.trim(), config, monitor, plot))
         .collect();
