@@ -440,6 +440,18 @@ pub fn fisher_heteroscedastic(
     Ok([inv[(0, 0)].sqrt(), inv[(1, 1)].sqrt(), inv[(2, 2)].sqrt()])
 }
 
+/// Why the least-squares solver stopped, in words for a person.
+fn termination_words(reason: &levenberg_marquardt::TerminationReason) -> String {
+    use levenberg_marquardt::TerminationReason as T;
+    match reason {
+        T::LostPatience => "the fit did not settle within its iteration limit".into(),
+        T::NoImprovementPossible(what) => format!("the fit could not improve further ({what})"),
+        T::Numerical(what) => format!("the fit met a numerical problem ({what})"),
+        T::Orthogonal | T::Converged { .. } | T::ResidualsZero => "the fit stopped early".into(),
+        _ => "the fit could not be computed for these readings".into(),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -627,17 +639,5 @@ mod tests {
             fit_logistic(&hours(), &CARLSON, Some(&w)),
             Err(FitError::BadWeight(2))
         );
-    }
-}
-
-/// Why the least-squares solver stopped, in words for a person.
-fn termination_words(reason: &levenberg_marquardt::TerminationReason) -> String {
-    use levenberg_marquardt::TerminationReason as T;
-    match reason {
-        T::LostPatience => "the fit did not settle within its iteration limit".into(),
-        T::NoImprovementPossible(what) => format!("the fit could not improve further ({what})"),
-        T::Numerical(what) => format!("the fit met a numerical problem ({what})"),
-        T::Orthogonal | T::Converged { .. } | T::ResidualsZero => "the fit stopped early".into(),
-        _ => "the fit could not be computed for these readings".into(),
     }
 }

@@ -372,102 +372,6 @@ fn min_max(v: &[f64]) -> (f64, f64) {
         })
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn sample() -> PlotData {
-        // An invented logistic, K = 1.2 OD, r = 0.6 per hour, midpoint 6 h.
-        let f = |t: f64| 1.2 / (1.0 + (-0.6 * (t - 6.0)).exp());
-        let times: Vec<f64> = (0..=24).map(|i| f64::from(i) * 0.5).collect();
-        PlotData {
-            title: "test plot (invented)".into(),
-            readings: times
-                .iter()
-                .enumerate()
-                .map(|(i, &t)| PlotPoint {
-                    time_h: t,
-                    od: f(t) + if i == 7 { 0.3 } else { 0.0 },
-                    rejected: i == 7,
-                })
-                .collect(),
-            truth: times.iter().map(|&t| (t, f(t))).collect(),
-            estimates: vec![BandCurve {
-                label: "estimate".into(),
-                time_h: times.clone(),
-                value: times.iter().map(|&t| f(t) * 1.01).collect(),
-                sd: vec![0.02; times.len()],
-            }],
-            markers: vec![Marker {
-                time_h: 9.5,
-                label: "alert".into(),
-            }],
-            phases: vec![
-                Phase {
-                    start_h: 0.0,
-                    end_h: 2.6,
-                    label: "lag".into(),
-                },
-                Phase {
-                    start_h: 2.6,
-                    end_h: 9.7,
-                    label: "growth".into(),
-                },
-            ],
-        }
-    }
-
-    #[test]
-    fn svg_has_every_element() {
-        let svg = render_svg(&sample(), 800, 500).unwrap();
-        assert!(svg.starts_with("<svg"), "{}", &svg[..80]);
-        assert!(svg.trim_end().ends_with("</svg>"));
-        // 24 accepted readings as circles (plus one legend circle).
-        assert_eq!(svg.matches("<circle").count(), 25);
-        // Labels are SVG text, readable without fonts.
-        for label in [
-            "test plot (invented)",
-            "lag",
-            "growth",
-            "alert",
-            "estimate (±2 sd)",
-            "truth (closed form)",
-            "rejected reading",
-            "time (h)",
-        ] {
-            assert!(
-                svg.contains(&format!("\n{label}\n</text>")),
-                "missing {label}"
-            );
-        }
-        // The band is a filled polygon with both edges: 2 × 25 vertices.
-        let polygon = svg
-            .split("<polygon")
-            .nth(1)
-            .expect("a band polygon")
-            .split("points=\"")
-            .nth(1)
-            .unwrap()
-            .split('"')
-            .next()
-            .unwrap();
-        assert_eq!(polygon.split_whitespace().count(), 50);
-        assert!(svg.len() > 10_000);
-    }
-
-    #[test]
-    fn writes_a_file_and_refuses_empty_data() {
-        let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("p.svg");
-        write_svg(&path, &sample()).unwrap();
-        let text = std::fs::read_to_string(&path).unwrap();
-        assert!(text.contains("</svg>"));
-        let err = write_svg(&dir.path().join("empty.svg"), &PlotData::default());
-        assert!(err.is_err());
-        assert!(!dir.path().join("empty.svg").exists());
-    }
-}
-
 /// Renders a replay as SVG: for one series the readings with the final
 /// online estimate, the batch fit, the monitor's phases and alert, above two
 /// panels that show how the capacity and μmax estimates and their 95 %
@@ -857,4 +761,100 @@ fn small_multiples_svg(replay: &crate::replay::Replay, log_scale: bool) -> Resul
         root.present().map_err(draw_err)?;
     }
     Ok(svg)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sample() -> PlotData {
+        // An invented logistic, K = 1.2 OD, r = 0.6 per hour, midpoint 6 h.
+        let f = |t: f64| 1.2 / (1.0 + (-0.6 * (t - 6.0)).exp());
+        let times: Vec<f64> = (0..=24).map(|i| f64::from(i) * 0.5).collect();
+        PlotData {
+            title: "test plot (invented)".into(),
+            readings: times
+                .iter()
+                .enumerate()
+                .map(|(i, &t)| PlotPoint {
+                    time_h: t,
+                    od: f(t) + if i == 7 { 0.3 } else { 0.0 },
+                    rejected: i == 7,
+                })
+                .collect(),
+            truth: times.iter().map(|&t| (t, f(t))).collect(),
+            estimates: vec![BandCurve {
+                label: "estimate".into(),
+                time_h: times.clone(),
+                value: times.iter().map(|&t| f(t) * 1.01).collect(),
+                sd: vec![0.02; times.len()],
+            }],
+            markers: vec![Marker {
+                time_h: 9.5,
+                label: "alert".into(),
+            }],
+            phases: vec![
+                Phase {
+                    start_h: 0.0,
+                    end_h: 2.6,
+                    label: "lag".into(),
+                },
+                Phase {
+                    start_h: 2.6,
+                    end_h: 9.7,
+                    label: "growth".into(),
+                },
+            ],
+        }
+    }
+
+    #[test]
+    fn svg_has_every_element() {
+        let svg = render_svg(&sample(), 800, 500).unwrap();
+        assert!(svg.starts_with("<svg"), "{}", &svg[..80]);
+        assert!(svg.trim_end().ends_with("</svg>"));
+        // 24 accepted readings as circles (plus one legend circle).
+        assert_eq!(svg.matches("<circle").count(), 25);
+        // Labels are SVG text, readable without fonts.
+        for label in [
+            "test plot (invented)",
+            "lag",
+            "growth",
+            "alert",
+            "estimate (±2 sd)",
+            "truth (closed form)",
+            "rejected reading",
+            "time (h)",
+        ] {
+            assert!(
+                svg.contains(&format!("\n{label}\n</text>")),
+                "missing {label}"
+            );
+        }
+        // The band is a filled polygon with both edges: 2 × 25 vertices.
+        let polygon = svg
+            .split("<polygon")
+            .nth(1)
+            .expect("a band polygon")
+            .split("points=\"")
+            .nth(1)
+            .unwrap()
+            .split('"')
+            .next()
+            .unwrap();
+        assert_eq!(polygon.split_whitespace().count(), 50);
+        assert!(svg.len() > 10_000);
+    }
+
+    #[test]
+    fn writes_a_file_and_refuses_empty_data() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("p.svg");
+        write_svg(&path, &sample()).unwrap();
+        let text = std::fs::read_to_string(&path).unwrap();
+        assert!(text.contains("</svg>"));
+        let err = write_svg(&dir.path().join("empty.svg"), &PlotData::default());
+        assert!(err.is_err());
+        assert!(!dir.path().join("empty.svg").exists());
+    }
 }

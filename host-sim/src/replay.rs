@@ -171,7 +171,7 @@ impl<T> Default for Thinned<T> {
 impl<T> Thinned<T> {
     fn push(&mut self, item: T) {
         let stride = self.stride.max(1);
-        if self.seen % stride == 0 {
+        if self.seen.is_multiple_of(stride) {
             self.items.push(item);
             if self.items.len() >= PLOT_POINTS {
                 let mut i = 0;
