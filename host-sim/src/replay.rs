@@ -63,7 +63,7 @@ use std::io::{BufRead, Write};
 use std::path::PathBuf;
 
 use anyhow::{Context, Result, bail, ensure};
-use plateau::{Estimate, EstimatorConfig, Event, MonitorConfig, Outcome, Watch};
+use plateau::{Estimate, EstimatorConfig, Event, MonitorConfig, Outcome, TimedEvent, Watch};
 use rayon::prelude::*;
 use serde_json::{Value as Json, json};
 
@@ -208,8 +208,10 @@ pub struct Series {
     pub saturated_cells: u64,
     rejections: BTreeMap<&'static str, u64>,
     faults: BTreeMap<&'static str, u64>,
-    alerts: Vec<Json>,
-    phases: Vec<Json>,
+    /// Saturation alerts and re-arms, as the monitor raised them.
+    alerts: Vec<TimedEvent<f32>>,
+    /// Phase changes, as the monitor raised them.
+    phases: Vec<TimedEvent<f32>>,
     /// Time of the first saturation alert, hours.
     pub first_alert_h: Option<f64>,
     /// The last step.
@@ -292,28 +294,15 @@ impl Series {
             self.since_restart.push((step.time_h, step.value - blank));
         }
         for te in &step.events {
-            let time_h = num(Some(te.time_h));
             match te.event {
-                Event::SaturationAlert { eta_h, capacity } => {
+                Event::SaturationAlert { .. } => {
                     if self.first_alert_h.is_none() {
                         self.first_alert_h = Some(step.time_h);
                     }
-                    self.alerts.push(json!({
-                        "kind": "saturation_alert",
-                        "time_h": time_h,
-                        "eta_h": num(Some(eta_h)),
-                        "capacity": num(Some(capacity)),
-                    }));
+                    self.alerts.push(*te);
                 }
-                Event::SaturationRearmed => self.alerts.push(json!({
-                    "kind": "saturation_rearmed",
-                    "time_h": time_h,
-                })),
-                Event::Phase { from, to } => self.phases.push(json!({
-                    "time_h": time_h,
-                    "from": from.as_str(),
-                    "to": to.as_str(),
-                })),
+                Event::SaturationRearmed => self.alerts.push(*te),
+                Event::Phase { .. } => self.phases.push(*te),
                 Event::Fault { fault, .. } => {
                     *self.faults.entry(fault.as_str()).or_insert(0) += 1;
                 }
@@ -636,6 +625,38 @@ pub fn series_summary(replay: &Replay, s: &Series) -> Json {
         Some((Err(msg), _)) => json!({ "error": msg }),
         None => json!({ "error": "not fitted" }),
     };
+    let alerts: Vec<Json> = s
+        .alerts
+        .iter()
+        .filter_map(|te| {
+            let time_h = num(Some(te.time_h));
+            match te.event {
+                Event::SaturationAlert { eta_h, capacity } => Some(json!({
+                    "kind": "saturation_alert",
+                    "time_h": time_h,
+                    "eta_h": num(Some(eta_h)),
+                    "capacity": num(Some(capacity)),
+                })),
+                Event::SaturationRearmed => Some(json!({
+                    "kind": "saturation_rearmed",
+                    "time_h": time_h,
+                })),
+                _ => None,
+            }
+        })
+        .collect();
+    let phases: Vec<Json> = s
+        .phases
+        .iter()
+        .filter_map(|te| match te.event {
+            Event::Phase { from, to } => Some(json!({
+                "time_h": num(Some(te.time_h)),
+                "from": from.as_str(),
+                "to": to.as_str(),
+            })),
+            _ => None,
+        })
+        .collect();
     let counts = |m: &BTreeMap<&'static str, u64>| -> Json {
         Json::Object(m.iter().map(|(k, v)| ((*k).to_owned(), json!(v))).collect())
     };
@@ -662,12 +683,12 @@ pub fn series_summary(replay: &Replay, s: &Series) -> Json {
         "alert_lead_h": replay.options.alert_lead_h,
         "phase": last.map_or(Json::Null, |s| json!(s.phase.as_str())),
         "alert_active": last.is_some_and(|s| s.alert_active),
-        "first_saturation_alert_h": s.alerts
+        "first_saturation_alert_h": alerts
             .iter()
             .find(|a| a["kind"] == "saturation_alert")
             .map_or(Json::Null, |a| a["time_h"].clone()),
-        "alerts": s.alerts,
-        "phases": s.phases,
+        "alerts": alerts,
+        "phases": phases,
         "faults": counts(&s.faults),
         "batch_fit": batch,
     });
