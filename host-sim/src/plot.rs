@@ -214,7 +214,8 @@ pub fn draw_main(root: &Area<'_>, data: &PlotData, log_scale: bool) -> Result<()
                 .map_err(draw_err)?;
         }
 
-        for (i, est) in data.estimates.iter().enumerate() {
+        // The first estimate is drawn last, on top.
+        for (i, est) in data.estimates.iter().enumerate().rev() {
             let colour = ESTIMATE_COLOURS[i % ESTIMATE_COLOURS.len()];
             if est.sd.iter().any(|s| *s > 0.0) {
                 let upper = est
@@ -631,6 +632,8 @@ fn draw_history(
 
 /// Panel width and height of a small-multiples plot, pixels.
 const PANEL: (u32, u32) = (190, 150);
+/// Narrowest small-multiples plot, pixels (room for the title).
+const MIN_WIDTH: u32 = 1000;
 
 fn small_multiples_svg(replay: &crate::replay::Replay, log_scale: bool) -> Result<String> {
     let n = replay.series.len();
@@ -660,13 +663,16 @@ fn small_multiples_svg(replay: &crate::replay::Replay, log_scale: bool) -> Resul
     let (xpad, ypad) = (((x1 - x0) * 0.03).max(1e-3), ((y1 - y0) * 0.08).max(1e-3));
     let (x_range, y_range) = (x0 - xpad..x1 + xpad, y0 - ypad..y1 + ypad);
     #[allow(clippy::cast_possible_truncation)] // small counts
-    let (width, height) = (PANEL.0 * cols as u32 + 20, PANEL.1 * rows as u32 + 70);
+    let (width, height) = (
+        (PANEL.0 * cols as u32 + 20).max(MIN_WIDTH),
+        PANEL.1 * rows as u32 + 70,
+    );
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (width, height)).into_drawing_area();
         root.fill(&WHITE).map_err(draw_err)?;
         let title = format!(
-            "{} — {n} series, final online estimate (blue), rejected readings (red ×), saturation alert (orange), time in h, signal in OD{}",
+            "{}: {n} series — final online estimate (blue), rejected (red ×), saturation alert (orange); hours, OD{}",
             replay.source,
             if log_scale { " (log scale)" } else { "" }
         );

@@ -603,6 +603,12 @@ pub fn replay<R: BufRead>(
 /// unknown), the monitor's phase and alerts, and the batch fit.
 #[must_use]
 pub fn series_summary(replay: &Replay, s: &Series) -> Json {
+    serde_json::to_value(SeriesDoc(replay, s)).unwrap_or(Json::Null)
+}
+
+/// The one-series summary's keys but `alerts` and `phases`, which
+/// [`SeriesDoc`] writes one element at a time.
+fn series_base(replay: &Replay, s: &Series) -> serde_json::Map<String, Json> {
     let e = s.last_estimate();
     let e = e.as_ref();
     let last = s.last.as_ref();
@@ -625,42 +631,10 @@ pub fn series_summary(replay: &Replay, s: &Series) -> Json {
         Some((Err(msg), _)) => json!({ "error": msg }),
         None => json!({ "error": "not fitted" }),
     };
-    let alerts: Vec<Json> = s
-        .alerts
-        .iter()
-        .filter_map(|te| {
-            let time_h = num(Some(te.time_h));
-            match te.event {
-                Event::SaturationAlert { eta_h, capacity } => Some(json!({
-                    "kind": "saturation_alert",
-                    "time_h": time_h,
-                    "eta_h": num(Some(eta_h)),
-                    "capacity": num(Some(capacity)),
-                })),
-                Event::SaturationRearmed => Some(json!({
-                    "kind": "saturation_rearmed",
-                    "time_h": time_h,
-                })),
-                _ => None,
-            }
-        })
-        .collect();
-    let phases: Vec<Json> = s
-        .phases
-        .iter()
-        .filter_map(|te| match te.event {
-            Event::Phase { from, to } => Some(json!({
-                "time_h": num(Some(te.time_h)),
-                "from": from.as_str(),
-                "to": to.as_str(),
-            })),
-            _ => None,
-        })
-        .collect();
     let counts = |m: &BTreeMap<&'static str, u64>| -> Json {
         Json::Object(m.iter().map(|(k, v)| ((*k).to_owned(), json!(v))).collect())
     };
-    let mut object = json!({
+    let object = json!({
         "readings": s.readings,
         "rejected": s.rejected,
         "restarts": s.restarts,
@@ -683,52 +657,150 @@ pub fn series_summary(replay: &Replay, s: &Series) -> Json {
         "alert_lead_h": replay.options.alert_lead_h,
         "phase": last.map_or(Json::Null, |s| json!(s.phase.as_str())),
         "alert_active": last.is_some_and(|s| s.alert_active),
-        "first_saturation_alert_h": alerts
+        "first_saturation_alert_h": s
+            .alerts
             .iter()
-            .find(|a| a["kind"] == "saturation_alert")
-            .map_or(Json::Null, |a| a["time_h"].clone()),
-        "alerts": alerts,
-        "phases": phases,
+            .find(|te| matches!(te.event, Event::SaturationAlert { .. }))
+            .map_or(Json::Null, |te| num(Some(te.time_h))),
         "faults": counts(&s.faults),
         "batch_fit": batch,
     });
-    if let Some(map) = object.as_object_mut() {
-        if !replay.options.log.saturated_markers.is_empty() {
-            map.insert("saturated_cells".into(), json!(s.saturated_cells));
+    let Json::Object(mut map) = object else {
+        unreachable!("json!({{..}}) is an object")
+    };
+    if !replay.options.log.saturated_markers.is_empty() {
+        map.insert("saturated_cells".into(), json!(s.saturated_cells));
+    }
+    if !replay.options.log.blank_cols.is_empty() {
+        map.insert("blank_cols".into(), json!(replay.options.log.blank_cols));
+    }
+    map
+}
+
+/// The alerts or the phase changes of a series, written as JSON one element
+/// at a time (a long log has hundreds of thousands).
+struct EventList<'a>(&'a [TimedEvent<f32>]);
+
+impl serde::Serialize for EventList<'_> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        serializer.collect_seq(self.0.iter().filter_map(|te| {
+            let time_h = num(Some(te.time_h));
+            match te.event {
+                Event::SaturationAlert { eta_h, capacity } => Some(json!({
+                    "kind": "saturation_alert",
+                    "time_h": time_h,
+                    "eta_h": num(Some(eta_h)),
+                    "capacity": num(Some(capacity)),
+                })),
+                Event::SaturationRearmed => Some(json!({
+                    "kind": "saturation_rearmed",
+                    "time_h": time_h,
+                })),
+                Event::Phase { from, to } => Some(json!({
+                    "time_h": time_h,
+                    "from": from.as_str(),
+                    "to": to.as_str(),
+                })),
+                _ => None,
+            }
+        }))
+    }
+}
+
+/// One series' summary object, keys in sorted order as `serde_json` writes
+/// them.
+struct SeriesDoc<'a>(&'a Replay, &'a Series);
+
+impl serde::Serialize for SeriesDoc<'_> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let base = series_base(self.0, self.1);
+        let mut keys: Vec<&str> = base.keys().map(String::as_str).collect();
+        keys.extend(["alerts", "phases"]);
+        keys.sort_unstable();
+        let mut map = serializer.serialize_map(Some(keys.len()))?;
+        for key in keys {
+            match key {
+                "alerts" => map.serialize_entry(key, &EventList(&self.1.alerts))?,
+                "phases" => map.serialize_entry(key, &EventList(&self.1.phases))?,
+                _ => map.serialize_entry(key, &base[key])?,
+            }
         }
-        if !replay.options.log.blank_cols.is_empty() {
+        map.end()
+    }
+}
+
+/// The whole summary (see [`summary`]), written without building it first.
+struct SummaryDoc<'a>(&'a Replay);
+
+impl serde::Serialize for SummaryDoc<'_> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let replay = self.0;
+        if let [only] = &replay.series[..] {
+            return SeriesDoc(replay, only).serialize(serializer);
+        }
+        let mut base = json!({
+            "readings": replay.rows,
+            "skipped_lines": replay.skipped_lines,
+            "alert_fraction": replay.options.alert_fraction,
+            "alert_lead_h": replay.options.alert_lead_h,
+            "series_order": replay.series.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
+        });
+        if let Some(map) = base.as_object_mut()
+            && !replay.options.log.blank_cols.is_empty()
+        {
             map.insert("blank_cols".into(), json!(replay.options.log.blank_cols));
         }
+        let base = base.as_object().cloned().unwrap_or_default();
+        let mut keys: Vec<&str> = base.keys().map(String::as_str).collect();
+        keys.push("series");
+        keys.sort_unstable();
+        let mut map = serializer.serialize_map(Some(keys.len()))?;
+        for key in keys {
+            if key == "series" {
+                let mut named: Vec<&Series> = replay.series.iter().collect();
+                named.sort_by(|a, b| a.name.cmp(&b.name));
+                let docs: Vec<(&str, SeriesDoc<'_>)> = named
+                    .into_iter()
+                    .map(|s| (s.name.as_str(), SeriesDoc(replay, s)))
+                    .collect();
+                map.serialize_entry(key, &SeriesMap(docs))?;
+            } else {
+                map.serialize_entry(key, &base[key])?;
+            }
+        }
+        map.end()
     }
-    object
+}
+
+struct SeriesMap<'a>(Vec<(&'a str, SeriesDoc<'a>)>);
+
+impl serde::Serialize for SeriesMap<'_> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        serializer.collect_map(self.0.iter().map(|(k, v)| (k, v)))
+    }
+}
+
+/// Writes the JSON summary (pretty, with a final newline) to `out`, one
+/// alert or phase change at a time.
+///
+/// # Errors
+///
+/// The writer fails.
+pub fn write_summary(replay: &Replay, out: &mut dyn Write) -> Result<()> {
+    let mut out = std::io::BufWriter::new(out);
+    serde_json::to_writer_pretty(&mut out, &SummaryDoc(replay))?;
+    out.write_all(b"\n")?;
+    out.flush()?;
+    Ok(())
 }
 
 /// The JSON summary: the one-series object for one value column, else the
 /// file-level keys and `"series": {column: <one-series object>}`.
 #[must_use]
 pub fn summary(replay: &Replay) -> Json {
-    if let [only] = &replay.series[..] {
-        return series_summary(replay, only);
-    }
-    let series: serde_json::Map<String, Json> = replay
-        .series
-        .iter()
-        .map(|s| (s.name.clone(), series_summary(replay, s)))
-        .collect();
-    let mut object = json!({
-        "readings": replay.rows,
-        "skipped_lines": replay.skipped_lines,
-        "alert_fraction": replay.options.alert_fraction,
-        "alert_lead_h": replay.options.alert_lead_h,
-        "series_order": replay.series.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
-        "series": series,
-    });
-    if let Some(map) = object.as_object_mut()
-        && !replay.options.log.blank_cols.is_empty()
-    {
-        map.insert("blank_cols".into(), json!(replay.options.log.blank_cols));
-    }
-    object
+    serde_json::to_value(SummaryDoc(replay)).unwrap_or(Json::Null)
 }
 
 /// Where a replay reads and writes (`-` is standard input / output).
@@ -798,8 +870,7 @@ pub fn run_files(paths: &Paths, options: &ReplayOptions, plot: &PlotStyle) -> Re
         result
     };
     if let Some(i) = summary_index {
-        let json = serde_json::to_string_pretty(&summary(&result))? + "\n";
-        outputs.file(i).write_all(json.as_bytes())?;
+        write_summary(&result, outputs.file(i)).context("cannot write the summary")?;
     }
     if let Some(i) = plot_index {
         let svg = crate::plot::replay_svg(&result, plot)?;
