@@ -475,30 +475,76 @@ fn one_series_svg(
         phases,
     };
     let batch = s.batch.as_ref().and_then(|b| b.fit.as_ref().ok());
+    let history: Vec<HistoryPoint> = trace
+        .iter()
+        .map(|p| HistoryPoint {
+            time_h: p.time_h,
+            capacity: p.capacity,
+            rate: p.rate,
+        })
+        .collect();
+    render_with_history(
+        &data,
+        &history,
+        [
+            (batch.map(|f| f.capacity), "batch fit of the whole log"),
+            (batch.map(|f| f.rate_per_h), "batch fit of the whole log"),
+        ],
+        log_scale,
+    )
+}
+
+/// The online estimate after one reading, for the history panels.
+///
+/// Units: `time_h` hours; capacity (value, sd) OD units; rate (value, sd)
+/// per hour.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct HistoryPoint {
+    /// Time of the reading, hours.
+    pub time_h: f64,
+    /// Capacity estimate and sd, OD units, once placed.
+    pub capacity: Option<(f32, f32)>,
+    /// μmax estimate and sd, per hour, once there is an estimate.
+    pub rate: Option<(f32, f32)>,
+}
+
+/// `data` as the main chart (1000 × 540 pixels) above two panels that show
+/// how the capacity and μmax estimates and their 95 % bands moved reading
+/// by reading, each with a dashed reference line (value, legend label).
+///
+/// # Errors
+///
+/// Nothing to draw, or a drawing error.
+pub fn render_with_history(
+    data: &PlotData,
+    history: &[HistoryPoint],
+    references: [(Option<f64>, &str); 2],
+    log_scale: bool,
+) -> Result<String> {
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (1000, 900)).into_drawing_area();
         root.fill(&WHITE).map_err(draw_err)?;
         let (top, bottom) = root.split_vertically(540);
-        draw_main(&top, &data, log_scale)?;
+        draw_main(&top, data, log_scale)?;
         let (left, right) = bottom.split_horizontally(500);
         let capacity: Vec<(f64, Option<(f32, f32)>)> =
-            trace.iter().map(|p| (p.time_h, p.capacity)).collect();
+            history.iter().map(|p| (p.time_h, p.capacity)).collect();
         let rate: Vec<(f64, Option<(f32, f32)>)> =
-            trace.iter().map(|p| (p.time_h, p.rate)).collect();
+            history.iter().map(|p| (p.time_h, p.rate)).collect();
         draw_history(
             &left,
             "capacity estimate, reading by reading",
             "capacity (OD)",
             &capacity,
-            batch.map(|f| f.capacity),
+            references[0],
         )?;
         draw_history(
             &right,
             "μmax estimate, reading by reading",
             "μmax (per h)",
             &rate,
-            batch.map(|f| f.rate_per_h),
+            references[1],
         )?;
         root.present().map_err(draw_err)?;
     }
@@ -512,7 +558,7 @@ fn draw_history(
     title: &str,
     y_desc: &str,
     points: &[(f64, Option<(f32, f32)>)],
-    reference: Option<f64>,
+    (reference, reference_label): (Option<f64>, &str),
 ) -> Result<()> {
     let blue = ESTIMATE_COLOURS[0];
     let mut segments: Vec<Vec<(f64, f64, f64)>> = vec![Vec::new()];
@@ -616,7 +662,7 @@ fn draw_history(
                 BLACK.stroke_width(1),
             ))
             .map_err(draw_err)?
-            .label("batch fit of the whole log")
+            .label(reference_label)
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK));
     }
     chart
