@@ -454,6 +454,25 @@ fn termination_words(reason: &levenberg_marquardt::TerminationReason) -> String 
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn solver_stops_are_told_in_words() {
+        use levenberg_marquardt::TerminationReason as T;
+        for reason in [
+            T::LostPatience,
+            T::NoImprovementPossible("gtol"),
+            T::Numerical("jacobian"),
+            T::Orthogonal,
+            T::ResidualsZero,
+            T::NoParameters,
+        ] {
+            let words = super::termination_words(&reason);
+            let debug = format!("{reason:?}");
+            let name = debug.split(['(', ' ', '{']).next().unwrap();
+            assert!(!words.contains(name), "{words:?} names {name}");
+            assert!(words.starts_with("the fit"), "{words}");
+        }
+    }
+
     use super::*;
 
     /// Carlson (1913) yeast culture, amount of yeast at t = 0..18 h

@@ -283,9 +283,13 @@ fn run() -> Result<()> {
                 alert_fraction,
                 alert_lead_h,
             };
-            let to_stdout = [&out, &summary, &plot]
-                .iter()
-                .any(|p| p.as_deref().is_some_and(|p| p.as_os_str() == "-"));
+            let to_stdout = [&out, &summary, &plot].iter().any(|p| {
+                p.as_deref().is_some_and(|p| {
+                    ["-", "/dev/stdout", "/dev/fd/1", "/proc/self/fd/1"]
+                        .iter()
+                        .any(|s| p.as_os_str() == *s)
+                })
+            });
             let paths = replay::Paths {
                 input: log,
                 out,
