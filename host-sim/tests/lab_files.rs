@@ -650,3 +650,32 @@ fn a_closed_pipe_ends_quietly() {
         assert!(output.status.success(), "{args:?}: {stderr}");
     }
 }
+
+#[test]
+fn a_log_scale_plot_labels_its_axis_in_od() {
+    let dir = tempfile::tempdir().unwrap();
+    let plot = dir.path().join("p.svg");
+    ok(&replay(&[
+        data("spreadsheet_semicolon.csv").to_str().unwrap(),
+        "--time-col",
+        "Time (min)",
+        "--value-col",
+        "OD600",
+        "--plot",
+        plot.to_str().unwrap(),
+        "--plot-log",
+    ]));
+    let svg = std::fs::read_to_string(&plot).unwrap();
+    assert!(svg.contains("signal (OD, log scale)"));
+    // Tick labels are OD values (10^k), not their logarithms: 0.100 and
+    // 1.000 are on the axis, negative numbers are not.
+    assert!(
+        svg.contains(">0.100<") || svg.contains("\n0.100\n"),
+        "no 0.100 tick"
+    );
+    assert!(
+        svg.contains(">1.000<") || svg.contains("\n1.000\n"),
+        "no 1.000 tick"
+    );
+    assert!(!svg.contains("\n-1.0\n") && !svg.contains(">-1.0<"));
+}
