@@ -277,11 +277,14 @@ pub fn fit_logistic(
             .minimize(problem);
         let p = problem.p;
         if !report.termination.was_successful() {
-            last_failure = format!("{:?}", report.termination);
+            last_failure = termination_words(&report.termination);
             continue;
         }
         if !(p[0] > 0.0 && p[1] > 0.0 && p.iter().all(|x| x.is_finite())) {
-            last_failure = format!("non-positive capacity or rate {p:?}");
+            last_failure = format!(
+                "the fit ran to a capacity or rate that is not positive (capacity {:.4}, rate {:.4} per h)",
+                p[0], p[1]
+            );
             continue;
         }
         let sse = 2.0 * report.objective_function;
@@ -437,8 +440,39 @@ pub fn fisher_heteroscedastic(
     Ok([inv[(0, 0)].sqrt(), inv[(1, 1)].sqrt(), inv[(2, 2)].sqrt()])
 }
 
+/// Why the least-squares solver stopped, in words for a person.
+fn termination_words(reason: &levenberg_marquardt::TerminationReason) -> String {
+    use levenberg_marquardt::TerminationReason as T;
+    match reason {
+        T::LostPatience => "the fit did not settle within its iteration limit".into(),
+        T::NoImprovementPossible(what) => format!("the fit could not improve further ({what})"),
+        T::Numerical(what) => format!("the fit met a numerical problem ({what})"),
+        T::Orthogonal | T::Converged { .. } | T::ResidualsZero => "the fit stopped early".into(),
+        _ => "the fit could not be computed for these readings".into(),
+    }
+}
+
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn solver_stops_are_told_in_words() {
+        use levenberg_marquardt::TerminationReason as T;
+        for reason in [
+            T::LostPatience,
+            T::NoImprovementPossible("gtol"),
+            T::Numerical("jacobian"),
+            T::Orthogonal,
+            T::ResidualsZero,
+            T::NoParameters,
+        ] {
+            let words = super::termination_words(&reason);
+            let debug = format!("{reason:?}");
+            let name = debug.split(['(', ' ', '{']).next().unwrap();
+            assert!(!words.contains(name), "{words:?} names {name}");
+            assert!(words.starts_with("the fit"), "{words}");
+        }
+    }
+
     use super::*;
 
     /// Carlson (1913) yeast culture, amount of yeast at t = 0..18 h

@@ -340,7 +340,28 @@ pub fn run(scenario: &Scenario, paths: &DemoPaths) -> Result<DemoReport> {
     let summary = Summary { columns };
     let plot = plot_data(scenario, &steps, &fit, &truth, &summary);
     crate::log::write_atomically(&paths.csv, |w| crate::scenario::write_csv(&readings, w))?;
-    crate::plot::write_svg(&paths.svg, &plot)?;
+    let history: Vec<crate::plot::HistoryPoint> = steps
+        .iter()
+        .filter(|st| st.time_h.is_finite())
+        .map(|st| {
+            let e = st.estimate.as_ref();
+            crate::plot::HistoryPoint {
+                time_h: st.time_h,
+                capacity: e.and_then(|e| e.capacity).map(|c| (c.value, c.sd)),
+                rate: e.map(|e| (e.rate_per_h.value, e.rate_per_h.sd)),
+            }
+        })
+        .collect();
+    let svg = crate::plot::render_with_history(
+        &plot,
+        &history,
+        [
+            (Some(summary.columns[0].summary.capacity_od.value), "truth"),
+            (Some(summary.columns[0].summary.rate_per_h.value), "truth"),
+        ],
+        false,
+    )?;
+    crate::log::write_atomically(&paths.svg, |w| Ok(w.write_all(svg.as_bytes())?))?;
     Ok(DemoReport {
         scenario: scenario.clone(),
         readings,

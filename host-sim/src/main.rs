@@ -9,14 +9,15 @@
 use std::path::PathBuf;
 
 use anyhow::{Context, Result};
-use clap::{Parser, Subcommand};
+use clap::{Parser, Subcommand, ValueEnum};
 use host_sim::demo::{self, DemoPaths};
 use host_sim::fleet;
-use host_sim::log::LogOptions;
+use host_sim::log::{Decimal, LogOptions, TimeUnit};
 use host_sim::online::Settings;
 use host_sim::replay::{self, ReplayOptions};
 use host_sim::scenario::{self, Scenario};
-use std::io::IsTerminal;
+use std::io::{IsTerminal, Write};
+use std::process::ExitCode;
 
 /// Host-side simulator for plateau (all built-in data are invented).
 #[derive(Parser, Debug)]
@@ -27,6 +28,7 @@ struct Cli {
 }
 
 #[derive(Subcommand, Debug)]
+#[allow(clippy::large_enum_variant, reason = "parsed once per run")]
 enum Command {
     /// Run the built-in invented culture: generate its readings, fit them,
     /// print the fit beside the closed-form truth, write a CSV and an SVG.
@@ -57,20 +59,55 @@ enum Command {
     /// reading; write one output row per reading and a JSON summary with the
     /// batch fit of the same log beside it.
     Replay {
-        /// The log (CSV with a header row).
+        /// The log (delimited text with a header row); `-` reads standard
+        /// input.
         log: PathBuf,
-        /// Name of the time column (hours).
+        /// Name of the time column. Its unit comes from the name (`time_h`,
+        /// `Time (min)`, `t [s]`, `days`) or from --time-unit; ISO 8601
+        /// date-times and elapsed [D.]HH:MM:SS need no unit.
         #[arg(long, default_value = "time_h")]
         time_col: String,
-        /// Name of the value column (OD units).
-        #[arg(long, default_value = "od")]
-        value_col: String,
-        /// Per-reading CSV output (written atomically).
+        /// Unit of a numeric time column (overrides the header's).
+        #[arg(long, value_enum)]
+        time_unit: Option<UnitArg>,
+        /// Name of a value column (OD units); repeat for several series
+        /// (plate wells, channels), replayed in parallel.
+        #[arg(long = "value-col")]
+        value_cols: Vec<String>,
+        /// Every column other than the time, blank and --ignore-col columns
+        /// is a value column (a plate: one series per well).
+        #[arg(long)]
+        all_value_cols: bool,
+        /// A column --all-value-cols leaves out; repeatable.
+        #[arg(long = "ignore-col")]
+        ignore_cols: Vec<String>,
+        /// Name of a medium-only (blank) column; repeat for several. Their
+        /// mean at each reading is subtracted from every series.
+        #[arg(long = "blank-col")]
+        blank_cols: Vec<String>,
+        /// Field delimiter: `,`, `;`, `tab` or another single character.
+        /// Detected when omitted.
+        #[arg(long)]
+        delimiter: Option<String>,
+        /// Decimal separator: detected, or a point or a comma.
+        #[arg(long, value_enum, default_value_t = DecimalArg::Auto)]
+        decimal: DecimalArg,
+        /// A cell text meaning the detector saturated; such a cell is kept
+        /// as a reading at the ceiling (needs --ceiling). Repeatable.
+        #[arg(long = "saturated-marker")]
+        saturated_markers: Vec<String>,
+        /// Per-reading CSV output (`-` for standard output).
         #[arg(long)]
         out: Option<PathBuf>,
-        /// JSON summary output (written atomically).
+        /// JSON summary output (`-` for standard output).
         #[arg(long)]
         summary: Option<PathBuf>,
+        /// SVG plot of the replay (`-` for standard output).
+        #[arg(long)]
+        plot: Option<PathBuf>,
+        /// Draw the readings on a logarithmic axis.
+        #[arg(long)]
+        plot_log: bool,
         /// Skip rows that cannot be parsed instead of failing.
         #[arg(long)]
         skip_bad_rows: bool,
@@ -115,7 +152,54 @@ enum Command {
     },
 }
 
-fn main() -> Result<()> {
+/// Unit of a numeric time column.
+#[derive(Clone, Copy, Debug, ValueEnum)]
+enum UnitArg {
+    /// Hours.
+    H,
+    /// Minutes.
+    Min,
+    /// Seconds.
+    S,
+    /// Days.
+    D,
+}
+
+/// Decimal separator.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+enum DecimalArg {
+    /// Detected from the file.
+    Auto,
+    /// 0.5
+    Point,
+    /// 0,5
+    Comma,
+}
+
+fn delimiter(text: &str) -> Result<u8> {
+    match text {
+        "tab" | "\\t" | "\t" => Ok(b'\t'),
+        t if t.len() == 1 && t.is_ascii() && t != "\"" => Ok(t.as_bytes()[0]),
+        t => anyhow::bail!(
+            "--delimiter must be one ASCII character other than a quote, or `tab`; got {t:?}"
+        ),
+    }
+}
+
+fn main() -> ExitCode {
+    match run() {
+        Ok(()) => ExitCode::SUCCESS,
+        // The reader went away (`| head`): end quietly.
+        Err(e) if host_sim::log::is_broken_pipe(&e) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            ExitCode::FAILURE
+        }
+    }
+}
+
+fn run() -> Result<()> {
+    let mut stdout = std::io::stdout().lock();
     match Cli::parse().command {
         Command::Demo { out_dir, csv, svg } => {
             let mut paths = DemoPaths::in_dir(&out_dir);
@@ -131,14 +215,23 @@ fn main() -> Result<()> {
             }
             let scenario = Scenario::from_toml(demo::DEMO_SCENARIO)?;
             let report = demo::run(&scenario, &paths)?;
-            print!("{}", demo::describe(&report, &paths));
+            write!(stdout, "{}", demo::describe(&report, &paths))?;
         }
         Command::Replay {
             log,
             time_col,
-            value_col,
+            time_unit,
+            value_cols,
+            all_value_cols,
+            ignore_cols,
+            blank_cols,
+            delimiter: delimiter_text,
+            decimal,
+            saturated_markers,
             out,
             summary,
+            plot,
+            plot_log,
             skip_bad_rows,
             alert_fraction,
             alert_lead_h,
@@ -163,18 +256,68 @@ fn main() -> Result<()> {
             let options = ReplayOptions {
                 log: LogOptions {
                     time_col,
-                    value_col,
+                    value_cols: if value_cols.is_empty() && !all_value_cols {
+                        vec!["od".to_owned()]
+                    } else {
+                        value_cols
+                    },
+                    all_value_cols,
+                    ignore_cols,
+                    blank_cols,
                     skip_bad_rows,
+                    time_unit: time_unit.map(|u| match u {
+                        UnitArg::H => TimeUnit::Hours,
+                        UnitArg::Min => TimeUnit::Minutes,
+                        UnitArg::S => TimeUnit::Seconds,
+                        UnitArg::D => TimeUnit::Days,
+                    }),
+                    delimiter: delimiter_text.as_deref().map(delimiter).transpose()?,
+                    decimal: match decimal {
+                        DecimalArg::Auto => Decimal::Auto,
+                        DecimalArg::Point => Decimal::Point,
+                        DecimalArg::Comma => Decimal::Comma,
+                    },
+                    saturated_markers,
                 },
                 settings: file.overridden_by(flags),
                 alert_fraction,
                 alert_lead_h,
             };
-            let result = replay::run_files(&log, out.as_deref(), summary.as_deref(), &options)?;
-            for line in &result.skipped_lines {
-                eprintln!("skipped unparseable line {line}");
+            let to_stdout = [&out, &summary, &plot].iter().any(|p| {
+                p.as_deref().is_some_and(|p| {
+                    ["-", "/dev/stdout", "/dev/fd/1", "/proc/self/fd/1"]
+                        .iter()
+                        .any(|s| p.as_os_str() == *s)
+                })
+            });
+            let paths = replay::Paths {
+                input: log,
+                out,
+                summary,
+                plot,
+            };
+            let style = replay::PlotStyle {
+                log_scale: plot_log,
+            };
+            let result = replay::run_files(&paths, &options, &style)?;
+            for note in &result.notes {
+                eprintln!("note: {note}");
             }
-            print!("{}", replay::describe(&result));
+            for bad in &result.skipped {
+                eprintln!("skipped line {}: {}", bad.line, bad.reason);
+            }
+            if result.skipped_lines.len() > result.skipped.len() {
+                eprintln!(
+                    "… and {} more skipped line(s) (all listed in the summary's skipped_lines)",
+                    result.skipped_lines.len() - result.skipped.len()
+                );
+            }
+            // The terminal report goes to stderr when an output took stdout.
+            if to_stdout {
+                eprint!("{}", replay::describe(&result));
+            } else {
+                write!(stdout, "{}", replay::describe(&result))?;
+            }
         }
         Command::Fleet { runs, seed, json } => {
             let options = fleet::FleetOptions {
@@ -188,10 +331,10 @@ fn main() -> Result<()> {
                 if let Some(object) = value.as_object_mut() {
                     object.insert("monitor".into(), serde_json::to_value(&monitor)?);
                 }
-                println!("{}", serde_json::to_string_pretty(&value)?);
+                writeln!(stdout, "{}", serde_json::to_string_pretty(&value)?)?;
             } else {
-                print!("{}", fleet::render(&report));
-                print!("{}", host_sim::alerts::render(&monitor));
+                write!(stdout, "{}", fleet::render(&report))?;
+                write!(stdout, "{}", host_sim::alerts::render(&monitor))?;
             }
         }
         Command::Simulate {
@@ -214,9 +357,10 @@ fn main() -> Result<()> {
                         out.display()
                     );
                 }
-                None => scenario::write_csv(&readings, std::io::stdout().lock())?,
+                None => scenario::write_csv(&readings, &mut stdout)?,
             }
         }
     }
+    stdout.flush()?;
     Ok(())
 }

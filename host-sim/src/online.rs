@@ -168,24 +168,28 @@ pub fn run(
     let mut watch: Watch = Watch::new(config, monitor);
     readings
         .iter()
-        .map(|&(time_h, value)| {
-            let report = watch.update(to_device(time_h), to_device(value));
-            let mut events = Vec::new();
-            while let Some(e) = watch.next_event() {
-                events.push(e);
-            }
-            Step {
-                time_h,
-                value,
-                outcome: report.outcome,
-                estimate: watch.estimate(),
-                phase: report.phase,
-                saturation_eta_h: report.saturation_eta_h,
-                alert_active: report.alert_active,
-                events,
-            }
-        })
+        .map(|&(time_h, value)| step(&mut watch, time_h, value))
         .collect()
+}
+
+/// Feeds one reading (time in hours, value in OD units) to `watch` and
+/// records what happened, taking every event it raised.
+pub fn step(watch: &mut Watch, time_h: f64, value: f64) -> Step {
+    let report = watch.update(to_device(time_h), to_device(value));
+    let mut events = Vec::new();
+    while let Some(e) = watch.next_event() {
+        events.push(e);
+    }
+    Step {
+        time_h,
+        value,
+        outcome: report.outcome,
+        estimate: watch.estimate(),
+        phase: report.phase,
+        saturation_eta_h: report.saturation_eta_h,
+        alert_active: report.alert_active,
+        events,
+    }
 }
 
 /// A short name of an event, for CSV cells and JSON.

@@ -3,7 +3,7 @@
 //! `tests/fuzz_corpus.rs` runs over the saved corpus without nightly.
 //!
 //! `read_log` must return `Ok` or an error — never panic — and:
-//! * every line number it reports (rows, bad rows, CSV errors) lies within
+//! * every line number it reports (rows, bad rows, header errors) lies within
 //!   the input (1 ..= number of lines), rows after the header, in order;
 //! * skipping bad rows is consistent with failing on them: the strict read
 //!   fails with `BadRows(b)` exactly when the skipping read succeeds with
@@ -30,8 +30,9 @@ pub fn check_log_bytes(data: &[u8]) {
     for (time_col, value_col) in [("time_h", "od"), ("a", "b")] {
         let strict = LogOptions {
             time_col: time_col.into(),
-            value_col: value_col.into(),
+            value_cols: vec![value_col.into()],
             skip_bad_rows: false,
+            ..LogOptions::default()
         };
         let skipping = LogOptions {
             skip_bad_rows: true,
@@ -56,7 +57,7 @@ pub fn check_log_bytes(data: &[u8]) {
 
 fn bits(rows: &[host_sim::log::LogRow]) -> Vec<(u64, u64, u64)> {
     rows.iter()
-        .map(|r| (r.line, r.time_h.to_bits(), r.value.to_bits()))
+        .map(|r| (r.line, r.time_h.to_bits(), r.value().to_bits()))
         .collect()
 }
 
@@ -79,8 +80,12 @@ fn check_one(result: &Result<host_sim::log::Log, LogError>, lines: u64) {
         Err(e) => {
             let message = e.to_string();
             assert!(!message.is_empty());
+            // Messages quote excerpts, never whole lines.
+            assert!(message.len() < 4096, "{} bytes of message", message.len());
             match e {
-                LogError::Csv { line, .. } => {
+                LogError::MissingColumn { line, .. }
+                | LogError::DuplicateColumn { line, .. }
+                | LogError::TimeUnitUnknown { line, .. } => {
                     assert!(*line >= 1 && *line <= lines, "{e:?} of {lines} lines");
                 }
                 LogError::BadRows(rows) => {
