@@ -135,6 +135,11 @@ enum Command {
         /// Innovation gate, standard deviations.
         #[arg(long)]
         gate: Option<f64>,
+        /// Readings before this time (hours on the log's clock) are blank
+        /// readings: the medium read before inoculation, averaged into the
+        /// blank the estimator subtracts.
+        #[arg(long = "blank-until", value_name = "H")]
+        blank_until_h: Option<f64>,
     },
     /// Monte Carlo accuracy benchmark of the online estimator against the
     /// truth, the batch fit and the Cramér–Rao bound, over seeded invented
@@ -241,6 +246,7 @@ fn run() -> Result<()> {
             blank,
             ceiling,
             gate,
+            blank_until_h,
         } => {
             let file = match &config {
                 Some(path) => Settings::load(path)?,
@@ -282,6 +288,7 @@ fn run() -> Result<()> {
                 settings: file.overridden_by(flags),
                 alert_fraction,
                 alert_lead_h,
+                blank_until_h,
             };
             let to_stdout = [&out, &summary, &plot].iter().any(|p| {
                 p.as_deref().is_some_and(|p| {

@@ -11,9 +11,18 @@
 //!
 //! `line, time_h, od, status, capacity, capacity_sd, rate_per_h, rate_sd,
 //! doubling_time_h, lag_h, inflection_time_h, phase, saturation_eta_h,
-//! saturation_eta_sd_h, alert, alert_active, events`
+//! saturation_eta_sd_h, alert, alert_active, events, shape, shape_sd, blank,
+//! blank_sd, blank_source`
 //!
-//! * `status`: `accepted`, `restarted` or the rejection reason.
+//! * `status`: `accepted`, `restarted`, `blank_reading` (a reading of the
+//!   blank phase, `--blank-until`) or the rejection reason.
+//! * `rate_per_h`, `rate_sd`: the maximum specific growth rate μmax.
+//! * `shape`, `shape_sd`: the fitted Richards shape ν (1 for a symmetric
+//!   logistic).
+//! * `blank`, `blank_sd`, `blank_source`: the blank the estimator subtracts
+//!   and where it comes from (`configured`, `measured` in the blank phase,
+//!   or `unknown`: then 0 is subtracted and the sds include the spread an
+//!   unknown blank leaves).
 //! * `capacity`, `capacity_sd`: published capacity above the blank (empty
 //!   while the estimator cannot place it).
 //! * `lag_h`: the estimator's lag, hours from the first reading (since the
@@ -72,7 +81,7 @@ use crate::log::{BadRow, Cell, LogError, LogOptions, LogReader, LogRow, Outputs,
 use crate::online::{self, Settings, Step};
 
 /// The header of the per-reading CSV.
-pub const COLUMNS: [&str; 17] = [
+pub const COLUMNS: [&str; 22] = [
     "line",
     "time_h",
     "od",
@@ -90,6 +99,11 @@ pub const COLUMNS: [&str; 17] = [
     "alert",
     "alert_active",
     "events",
+    "shape",
+    "shape_sd",
+    "blank",
+    "blank_sd",
+    "blank_source",
 ];
 
 /// Rows read before they go through the estimators (in parallel).
@@ -110,6 +124,9 @@ pub struct ReplayOptions {
     pub alert_fraction: f64,
     /// How long before saturation the alert should come, hours.
     pub alert_lead_h: f64,
+    /// Readings before this time (hours on the log's clock, after unit
+    /// conversion) are blank readings: the medium before inoculation.
+    pub blank_until_h: Option<f64>,
 }
 
 impl Default for ReplayOptions {
@@ -119,6 +136,7 @@ impl Default for ReplayOptions {
             settings: Settings::default(),
             alert_fraction: 0.9,
             alert_lead_h: 1.0,
+            blank_until_h: None,
         }
     }
 }
@@ -206,6 +224,12 @@ pub struct Series {
     pub restarts: usize,
     /// Saturation-marker cells fed as readings at the ceiling.
     pub saturated_cells: u64,
+    /// Readings taken as blank readings (`--blank-until`).
+    pub blank_readings: u64,
+    /// Readings before this time are blank readings, hours.
+    blank_until_h: Option<f64>,
+    /// The blank measured so far in the blank phase, OD units.
+    measured_blank: Option<f64>,
     rejections: BTreeMap<&'static str, u64>,
     faults: BTreeMap<&'static str, u64>,
     /// Saturation alerts and re-arms, as the monitor raised them.
@@ -245,6 +269,9 @@ impl Series {
             rejected: 0,
             restarts: 0,
             saturated_cells: 0,
+            blank_readings: 0,
+            blank_until_h: None,
+            measured_blank: None,
             rejections: BTreeMap::new(),
             faults: BTreeMap::new(),
             alerts: Vec::new(),
@@ -264,6 +291,11 @@ impl Series {
 
     /// Feeds one row's cell `k`; writes its CSV row when `csv` is set.
     fn feed(&mut self, row: &LogRow, k: usize, csv: bool, series_column: bool, blank: f64) {
+        if self.blank_until_h.is_some_and(|h| row.time_h < h) {
+            self.feed_blank(row, k, csv, series_column);
+            return;
+        }
+        let blank = self.measured_blank.unwrap_or(blank);
         let (raw, value) = match row.cells[k] {
             Cell::Saturated => {
                 self.saturated_cells += 1;
@@ -339,6 +371,53 @@ impl Series {
         self.last = Some(step);
     }
 
+    /// A reading of the blank phase: the medium before inoculation, given
+    /// to the estimator as a blank reading (a saturated cell or a value it
+    /// refuses is counted as a rejected reading).
+    fn feed_blank(&mut self, row: &LogRow, k: usize, csv: bool, series_column: bool) {
+        self.readings += 1;
+        let raw = match row.cells[k] {
+            Cell::Saturated => self.ceiling,
+            Cell::Value(v) => v,
+        };
+        #[allow(clippy::cast_possible_truncation)] // the device holds f32
+        let taken = match row.cells[k] {
+            Cell::Value(v) if v < self.ceiling => self.watch.blank_reading(v as f32).ok(),
+            _ => None,
+        };
+        let status = match taken {
+            Some(b) => {
+                self.blank_readings += 1;
+                self.measured_blank = Some(f64::from(b.value));
+                "blank_reading"
+            }
+            None => {
+                self.rejected += 1;
+                *self.rejections.entry("blank_reading_refused").or_insert(0) += 1;
+                "blank_reading_refused"
+            }
+        };
+        if csv {
+            if series_column {
+                self.csv.extend_from_slice(self.name.as_bytes());
+                self.csv.push(b',');
+            }
+            let mut cells = vec![String::new(); COLUMNS.len()];
+            cells[0] = row.line.to_string();
+            cells[1] = row.time_h.to_string();
+            cells[2] = raw.to_string();
+            cells[3] = status.to_owned();
+            if let Some(b) = taken {
+                let n = COLUMNS.len();
+                cells[n - 3] = b.value.to_string();
+                cells[n - 2] = b.sd.to_string();
+                cells[n - 1] = "measured".to_owned();
+            }
+            let _ = writeln!(self.csv, "{}", cells.join(","));
+            self.row_ends.push(self.csv.len());
+        }
+    }
+
     /// The estimate after the last reading.
     #[must_use]
     pub fn last_estimate(&self) -> Option<Estimate<f32>> {
@@ -406,6 +485,11 @@ fn write_csv_row(out: &mut Vec<u8>, line: u64, step: &Step, od: f64) {
             .map(|e| online::event_name(&e.event))
             .collect::<Vec<_>>()
             .join(";"),
+        cell(e.and_then(|e| e.shape).map(|m| m.value)),
+        cell(e.and_then(|e| e.shape).map(|m| m.sd)),
+        cell(e.map(|e| e.blank_measured().value)),
+        cell(e.map(|e| e.blank_measured().sd)),
+        e.map_or("", |e| e.blank_source().as_str()).to_owned(),
     ];
     let _ = writeln!(out, "{}", cells.join(","));
 }
@@ -469,7 +553,24 @@ fn configs(options: &ReplayOptions) -> Result<(EstimatorConfig<f32>, MonitorConf
             w[0]
         );
     }
-    let config = options.settings.config()?;
+    let mut config = options.settings.config()?;
+    if !log.blank_cols.is_empty() {
+        // The blank wells' mean is subtracted before the estimator sees the
+        // readings: the blank is measured, so the estimator's is a known 0.
+        config = config
+            .blank(0.0)
+            .map_err(|e| anyhow::anyhow!("blank: {e}"))?;
+    }
+    if let Some(h) = options.blank_until_h {
+        ensure!(
+            h.is_finite(),
+            "--blank-until must be a finite time in hours, got {h}"
+        );
+        ensure!(
+            log.blank_cols.is_empty() && options.settings.blank_od.is_none(),
+            "give the blank one way: --blank, --blank-col or --blank-until"
+        );
+    }
     if !log.blank_cols.is_empty() && options.settings.blank_od.is_some() {
         bail!(
             "give the blank either as a number (--blank) or as blank columns (--blank-col), not both"
@@ -508,7 +609,11 @@ pub fn replay<R: BufRead>(
     let blank = f64::from(config.blank_value());
     let mut series: Vec<Series> = columns
         .iter()
-        .map(|name| Series::new(name.trim(), config, monitor, plot))
+        .map(|name| {
+            let mut s = Series::new(name.trim(), config, monitor, plot);
+            s.blank_until_h = options.blank_until_h;
+            s
+        })
         .collect();
     if let Some(out) = csv.as_mut() {
         let mut header = String::new();
@@ -653,6 +758,15 @@ fn series_base(replay: &Replay, s: &Series) -> serde_json::Map<String, Json> {
         "saturation_eta_h": num(last.and_then(|s| s.saturation_eta_h).map(|m| m.value)),
         "saturation_eta_sd_h": num(last.and_then(|s| s.saturation_eta_h).map(|m| m.sd)),
         "noise_scale": num(e.map(|e| e.noise_scale)),
+        "noise_floor_od": num(e.map(|e| e.noise_floor)),
+        "noise_fraction": num(e.map(|e| e.noise_fraction)),
+        "family": e.map_or(Json::Null, |e| json!(e.family())),
+        "shape": num(e.and_then(|e| e.shape).map(|m| m.value)),
+        "shape_sd": num(e.and_then(|e| e.shape).map(|m| m.sd)),
+        "blank": num(e.map(|e| e.blank_measured().value)),
+        "blank_sd": num(e.map(|e| e.blank_measured().sd)),
+        "blank_source": e.map_or(Json::Null, |e| json!(e.blank_source().as_str())),
+        "blank_readings": s.blank_readings,
         "alert_fraction": replay.options.alert_fraction,
         "alert_lead_h": replay.options.alert_lead_h,
         "phase": last.map_or(Json::Null, |s| json!(s.phase.as_str())),

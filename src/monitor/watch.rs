@@ -74,6 +74,16 @@ impl<
             .observe(time_h, value, outcome, estimate.as_ref())
     }
 
+    /// A blank reading (medium alone, before inoculation), signal units:
+    /// see [`Estimator::blank_reading`]. Returns the blank so far.
+    ///
+    /// # Errors
+    /// As [`Estimator::blank_reading`]: not finite, or after the culture
+    /// readings started.
+    pub fn blank_reading(&mut self, value: T) -> Result<Measured<T>, Error> {
+        self.estimator.blank_reading(value)
+    }
+
     /// Adds a user target (see [`Monitor::add_target`]).
     ///
     /// # Errors
