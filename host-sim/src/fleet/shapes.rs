@@ -93,10 +93,13 @@ pub enum Family {
     /// Richards with shape ν 1.6–4: sharp shoulder.
     RichardsSharp,
     /// Gompertz shape with a lag of 0.5–3 h.
+    #[serde(rename = "gompertz_lag")]
     Gompertz,
     /// Baranyi–Roberts with a lag of 1.5–4 h.
+    #[serde(rename = "baranyi_lag")]
     Baranyi,
     /// Logistic on an unknown blank of 0.03–0.08 OD.
+    #[serde(rename = "logistic_blank")]
     BlankedLogistic,
 }
 
@@ -813,8 +816,8 @@ pub fn render(report: &ShapeReport) -> String {
     );
     let _ = writeln!(
         s,
-        "{:<16}{:>5}{:>9}{:>7}{:>6}{:>6}{:>9}{:>8}{:>8}  {}",
-        "family", "runs", "on time", "early", "late", "none", "lead med", "min", "max", "target"
+        "{:<16}{:>5}{:>9}{:>7}{:>6}{:>6}{:>9}{:>8}{:>8}  target",
+        "family", "runs", "on time", "early", "late", "none", "lead med", "min", "max"
     );
     let line = |s: &mut String, name: &str, f: &FamilyFigures, target: Option<bool>| {
         let _ = writeln!(
@@ -849,17 +852,8 @@ pub fn render(report: &ShapeReport) -> String {
     );
     let _ = writeln!(
         s,
-        "{:<16}{:>16}{:>8}{:>16}{:>8} | {:>7}{:>7}{:>7}{:>7}  {}",
-        "family",
-        "K onl",
-        "K bat",
-        "μmax onl",
-        "μ bat",
-        "Kcov o",
-        "Kcov b",
-        "μcov o",
-        "μcov b",
-        "coverage target"
+        "{:<16}{:>16}{:>8}{:>16}{:>8} | {:>7}{:>7}{:>7}{:>7}  coverage target",
+        "family", "K onl", "K bat", "μmax onl", "μ bat", "Kcov o", "Kcov b", "μcov o", "μcov b",
     );
     let acc = |s: &mut String, name: &str, f: &FamilyFigures, target: Option<bool>| {
         let _ = writeln!(
