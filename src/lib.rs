@@ -39,7 +39,10 @@ mod photometer;
 pub mod sampler;
 
 pub use error::Error;
-pub use estimator::{Estimate, Estimator, EstimatorConfig, Measured, Outcome, Rejection};
+pub use estimator::{
+    BlankSource, DEFAULT_UNKNOWN_BLANK_SD, Estimate, Estimator, EstimatorConfig, LogisticEstimator,
+    Measured, Outcome, Rejection,
+};
 pub use math::Real;
 pub use monitor::{
     Event, Fault, Faults, Monitor, MonitorConfig, Phase, Report, Target, TimedEvent, Watch,
@@ -51,6 +54,6 @@ pub use photometer::{
 pub use sampler::{MeanCounts, Sampler, SamplerConfig, SamplerError};
 
 pub use model::{
-    Baranyi, Blanked, Gompertz, GrowthCurve, Inflection, Logistic, Population, Richards,
-    ZwieteringLogistic,
+    Baranyi, Blanked, Gompertz, GrowthCurve, Inflection, LagRichards, Logistic, OnlineFamily,
+    Population, Richards, ZwieteringLogistic,
 };

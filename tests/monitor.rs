@@ -309,7 +309,7 @@ fn a_full_queue_drops_the_oldest_and_counts_it() {
     for i in 0..10 {
         let t = i as f32;
         let outcome = estimator.update(t, f32::NAN);
-        monitor.observe(t, f32::NAN, outcome, None);
+        monitor.observe::<5, plateau::LagRichards<f32>>(t, f32::NAN, outcome, None);
     }
     assert_eq!(monitor.events_raised(), 10);
     assert_eq!(monitor.events_lost(), 6);

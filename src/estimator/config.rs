@@ -41,6 +41,12 @@ pub struct EstimatorConfig<T = f32> {
     pub(crate) noise_floor: T,
     pub(crate) noise_fraction: T,
     pub(crate) blank: T,
+    /// Standard deviation of the blank in use, signal units: 0 for a
+    /// configured blank, the blank phase's standard error once measured,
+    /// `unknown_blank_sd` when no blank was given.
+    pub(crate) blank_sd: T,
+    pub(crate) blank_known: bool,
+    pub(crate) learn_noise: bool,
     pub(crate) ceiling: T,
     pub(crate) gate_sigma: T,
     pub(crate) dilution_ratio: T,
@@ -70,6 +76,9 @@ impl<T: Real> EstimatorConfig<T> {
             noise_floor: T::from_f64(0.003),
             noise_fraction: T::from_f64(0.01),
             blank: T::ZERO,
+            blank_sd: T::from_f64(DEFAULT_UNKNOWN_BLANK_SD),
+            blank_known: false,
+            learn_noise: true,
             ceiling: T::INFINITY,
             gate_sigma: T::from_f64(4.0),
             dilution_ratio: T::from_f64(0.8),
@@ -101,13 +110,50 @@ impl<T: Real> EstimatorConfig<T> {
     }
 
     /// Blank (baseline) reading of the medium alone, in signal units, subtracted
-    /// from every reading before the fit. Default 0.
+    /// from every reading before the fit, taken as exact. Without a blank
+    /// (the default) the estimator subtracts 0 and widens its intervals for
+    /// a blank it does not know (see [`unknown_blank_sd`](Self::unknown_blank_sd));
+    /// a blank phase ([`Estimator::blank_reading`](crate::Estimator::blank_reading))
+    /// measures one.
     ///
     /// # Errors
     /// `blank` must be finite and ≥ 0.
     pub fn blank(mut self, blank: T) -> Result<Self, Error> {
         self.blank = non_negative(blank, "blank")?;
+        self.blank_sd = T::ZERO;
+        self.blank_known = true;
         Ok(self)
+    }
+
+    /// The spread (standard deviation, signal units) of the blank the
+    /// estimator assumes when none is configured or measured; default
+    /// [`DEFAULT_UNKNOWN_BLANK_SD`] OD units (a plate well or cuvette of
+    /// medium reads a few hundredths of an OD unit, common practice). The
+    /// estimate's standard deviations include how far such a blank would
+    /// move it. A blank left free beside a lag is not identifiable from the
+    /// curve alone (a flat start is either a lag or a blank under a smaller
+    /// culture), so the estimator does not fit one: it says how uncertain
+    /// the missing blank leaves it. Set 0 to ignore the blank altogether.
+    ///
+    /// # Errors
+    /// `unknown_blank_sd` must be finite and ≥ 0.
+    pub fn unknown_blank_sd(mut self, sd: T) -> Result<Self, Error> {
+        let sd = non_negative(sd, "unknown_blank_sd")?;
+        if !self.blank_known {
+            self.blank_sd = sd;
+        }
+        Ok(self)
+    }
+
+    /// Whether the noise model's split between floor and proportional part
+    /// is learnt from the residuals (default true): the configured
+    /// [`noise`](Self::noise) is then only the starting point, so the weights
+    /// fit any instrument and unit. With `false` the configured split is
+    /// kept (the overall scale is always learnt).
+    #[must_use]
+    pub fn learn_noise(mut self, learn: bool) -> Self {
+        self.learn_noise = learn;
+        self
     }
 
     /// Sensor ceiling in signal units: readings at or above it are saturated
@@ -284,6 +330,39 @@ impl<T: Real> EstimatorConfig<T> {
     /// configured noise model, in signal units.
     #[must_use]
     pub fn noise_sd(&self, y: T) -> T {
-        self.noise_floor + self.noise_fraction * y.max(T::ZERO)
+        self.noise_model().sd(y)
+    }
+
+    /// Whether a blank was configured.
+    #[must_use]
+    pub fn blank_is_known(&self) -> bool {
+        self.blank_known
+    }
+
+    /// The configured noise model.
+    pub(crate) fn noise_model(&self) -> NoiseModel<T> {
+        NoiseModel {
+            floor: self.noise_floor,
+            fraction: self.noise_fraction,
+        }
+    }
+}
+
+/// Default spread of an unknown blank, signal units (OD units): see
+/// [`EstimatorConfig::unknown_blank_sd`].
+pub const DEFAULT_UNKNOWN_BLANK_SD: f64 = 0.05;
+
+/// A reading's standard deviation: `floor + fraction × y`, signal units.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub(crate) struct NoiseModel<T> {
+    pub(crate) floor: T,
+    pub(crate) fraction: T,
+}
+
+impl<T: Real> NoiseModel<T> {
+    /// The sd at signal `y` above blank.
+    pub(crate) fn sd(&self, y: T) -> T {
+        self.floor + self.fraction * y.max(T::ZERO)
     }
 }

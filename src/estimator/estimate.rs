@@ -1,7 +1,8 @@
 //! What the estimator publishes: outcomes of readings and the current estimate.
 
-use super::fit::{Sym3, model, saturate};
-use crate::{Error, Logistic, Real};
+use super::fit::{Sym, saturate};
+use crate::Real;
+use crate::model::{LagRichards, OnlineFamily};
 
 /// A value with its standard deviation, in the units of the field it sits in.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -98,75 +99,119 @@ impl Outcome {
     }
 }
 
+/// Where the blank the estimator subtracts comes from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum BlankSource {
+    /// Configured ([`EstimatorConfig::blank`](crate::EstimatorConfig::blank)), taken as exact.
+    Configured,
+    /// Measured in a blank phase ([`Estimator::blank_reading`](crate::Estimator::blank_reading)),
+    /// with its standard error.
+    Measured,
+    /// Not given: 0 is subtracted and the standard deviations include the
+    /// spread of an unknown blank
+    /// ([`EstimatorConfig::unknown_blank_sd`](crate::EstimatorConfig::unknown_blank_sd)).
+    Unknown,
+}
+
+impl BlankSource {
+    /// A short lower-case name, for logs and CSV cells.
+    #[must_use]
+    pub const fn as_str(&self) -> &'static str {
+        match self {
+            Self::Configured => "configured",
+            Self::Measured => "measured",
+            Self::Unknown => "unknown",
+        }
+    }
+}
+
 /// The current estimate of the growth curve, with standard deviations.
 ///
 /// Units: signal units (OD units for a photometer) for capacity and values,
-/// hours for times, per hour for rates. The fitted model is the logistic
-/// y = blank + K / (1 + e^(−r (t − `t_m`))).
+/// hours for times, per hour for rates. The fitted model is
+/// y = blank + f(t), f the estimator's family (by default [`LagRichards`]);
+/// standard deviations are by the delta method from the covariance of the
+/// family's parameters, which includes the blank's uncertainty.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Estimate<T = f32> {
+pub struct Estimate<T: Real = f32, const P: usize = 5, F: OnlineFamily<T, P> = LagRichards<T>> {
     /// Carrying capacity above the blank, signal units. `None` while the data
     /// cannot place it (relative sd above the configured limit), typically
     /// during clean exponential growth.
     #[doc(alias = "K")]
     pub capacity: Option<Measured<T>>,
-    /// Specific growth rate r of the logistic, per hour (the maximum
-    /// per-capita rate, reached at low density).
+    /// Maximum specific growth rate μmax, per hour: the largest
+    /// d ln(y − blank)/dt of the fitted curve from the first reading on (for
+    /// the plain logistic, its rate r, approached at low density).
     #[doc(alias = "mu_max")]
     pub rate_per_h: Measured<T>,
-    /// Doubling time ln 2 / r during early growth, hours.
+    /// Doubling time ln 2 / μmax during exponential growth, hours.
     pub doubling_time_h: Measured<T>,
-    /// Inflection (midpoint) time `t_m`, hours on the caller's clock; `None`
-    /// while the capacity is.
+    /// Inflection time (where the fitted curve is steepest), hours on the
+    /// caller's clock; `None` while the capacity is.
     pub inflection_time_h: Option<Measured<T>>,
-    /// Lag, hours: from the starting reading (the median of the first three
-    /// since the last restart, level y₀ at time t₀) to the time λ at which
-    /// the exponential-phase line of the fitted curve on the log scale,
-    /// ln y = ln K − r (`t_m` − t), reaches y₀: λ − t₀ with
-    /// λ = `t_m` − ln(K / y₀) / r. This is the tangent construction on ln y
-    /// used by Zwietering et al. (1990) and by Baranyi & Roberts (1994); a
+    /// Lag λ by the tangent construction on ln y (Zwietering et al. 1990;
+    /// Baranyi & Roberts 1994): from the first reading since the last
+    /// restart to where the tangent to ln(y − blank) at the point of maximum
+    /// specific growth rate meets the fitted starting level, hours. A
     /// culture that grows from its first reading has a lag near zero. `None`
-    /// while the capacity is, or when the starting level is not clear of the
-    /// noise (its relative sd above 0.2). Its sd includes the uncertainty of
-    /// y₀.
+    /// while the capacity is, and for a family without a lag (the plain
+    /// logistic).
     #[doc(alias = "lambda")]
     pub lag_h: Option<Measured<T>>,
+    /// The fitted shape, Richards' ν (unitless): 1 for a symmetric logistic,
+    /// towards 0 for a slow, Gompertz-like shoulder, above 1 for a sharp one.
+    /// `None` for a family without one.
+    #[doc(alias = "nu")]
+    pub shape: Option<Measured<T>>,
     /// The fitted signal (blank included) at the latest accepted reading.
     pub fitted_value: Measured<T>,
     /// Time of the latest accepted reading, hours.
     pub latest_time_h: T,
-    /// Noise scale learnt from the residuals, relative to the configured
-    /// noise model (≈ 1 when the model is right).
+    /// Noise scale learnt from the innovations, relative to the noise model
+    /// in use (≈ 1 when the model is right).
     pub noise_scale: T,
+    /// The noise model in use, learnt from the data unless
+    /// [`learn_noise`](crate::EstimatorConfig::learn_noise) is off: a
+    /// reading's sd is `noise_floor + noise_fraction × (y − blank)`
+    /// (before the noise scale). Signal units.
+    pub noise_floor: T,
+    /// See [`noise_floor`](Self::noise_floor); unitless.
+    pub noise_fraction: T,
     /// Readings accepted since the last restart.
     pub readings: u32,
-    pub(crate) theta: [T; 3],
-    pub(crate) covariance: Sym3<T>,
+    pub(crate) theta: [T; P],
+    pub(crate) covariance: Sym<T, P>,
     pub(crate) origin_h: T,
     pub(crate) blank: T,
+    pub(crate) blank_sd: T,
+    pub(crate) blank_source: BlankSource,
+    pub(crate) curve: F,
 }
 
-impl<T: Real> Estimate<T> {
-    /// Covariance of the fitted parameters (ln K, ln r, `t_m`), row-major.
-    /// ln K is the log of capacity in signal units, ln r the log of the rate
-    /// per hour, `t_m` in hours.
+impl<T: Real, const P: usize, F: OnlineFamily<T, P>> Estimate<T, P, F> {
+    /// Covariance of the fitted parameters θ (the family's, see
+    /// [`OnlineFamily`]; ln K first, then the ln rate), blank uncertainty
+    /// included.
     #[doc(alias = "P")]
     #[must_use]
-    pub fn covariance(&self) -> [[T; 3]; 3] {
-        let mut out = [[T::ZERO; 3]; 3];
-        for (i, row) in out.iter_mut().enumerate() {
-            for (j, cell) in row.iter_mut().enumerate() {
-                *cell = self.covariance.get(i, j);
-            }
-        }
-        out
+    pub fn covariance(&self) -> [[T; P]; P] {
+        self.covariance.0
     }
 
-    /// The fitted parameters (ln K, ln r, `t_m` in hours on the caller's clock).
+    /// The fitted parameters θ (the family's; times in hours since
+    /// [`origin_h`](Self::origin_h)).
     #[must_use]
-    pub fn parameters(&self) -> [T; 3] {
-        [self.theta[0], self.theta[1], self.theta[2] + self.origin_h]
+    pub fn parameters(&self) -> [T; P] {
+        self.theta
+    }
+
+    /// The caller's clock value (hours) of the first reading since the last
+    /// restart: the family's time origin.
+    #[must_use]
+    pub fn origin_h(&self) -> T {
+        self.origin_h
     }
 
     /// The blank the estimator subtracts, signal units.
@@ -175,26 +220,42 @@ impl<T: Real> Estimate<T> {
         self.blank
     }
 
+    /// The blank with its standard deviation (0 when configured).
+    #[must_use]
+    pub fn blank_measured(&self) -> Measured<T> {
+        Measured {
+            value: self.blank,
+            sd: self.blank_sd,
+        }
+    }
+
+    /// Where the blank comes from.
+    #[must_use]
+    pub fn blank_source(&self) -> BlankSource {
+        self.blank_source
+    }
+
+    /// The family's name ([`OnlineFamily::NAME`]).
+    #[must_use]
+    pub fn family(&self) -> &'static str {
+        F::NAME
+    }
+
     /// Capacity as fitted, even when too uncertain to publish, with its sd.
     #[must_use]
     pub fn capacity_unchecked(&self) -> Measured<T> {
-        let k = self.theta[0].exp();
+        let k = self.curve.capacity();
         Measured {
             value: k,
             sd: saturate(k * self.covariance.get(0, 0).max(T::ZERO).sqrt()),
         }
     }
 
-    /// The fitted logistic (above blank) on the caller's clock.
-    ///
-    /// # Errors
-    /// Only if the fitted parameters are not representable as a `Logistic`.
-    pub fn curve(&self) -> Result<Logistic<T>, Error> {
-        Logistic::from_midpoint(
-            self.theta[0].exp(),
-            self.theta[1].exp(),
-            self.theta[2] + self.origin_h,
-        )
+    /// The fitted curve above blank, with times in hours since
+    /// [`origin_h`](Self::origin_h).
+    #[must_use]
+    pub fn curve(&self) -> F {
+        self.curve
     }
 
     /// The fitted signal (blank included) at `time_h` with its standard
@@ -204,7 +265,7 @@ impl<T: Real> Estimate<T> {
     /// See [`Estimator`](crate::Estimator).
     #[must_use]
     pub fn value_at(&self, time_h: T) -> Measured<T> {
-        let (f, g) = model(&self.theta, time_h - self.origin_h);
+        let (f, g, _) = self.curve.eval(time_h - self.origin_h);
         Measured {
             value: f + self.blank,
             sd: saturate(self.covariance.sd_along(&g)),
@@ -216,36 +277,40 @@ impl<T: Real> Estimate<T> {
     /// the delta method. `None` when the level is not between the blank and
     /// the capacity.
     ///
-    /// t = `t_m` + ln(L / (K − L)) / r, so ∂t/∂ln K = −K / (r (K − L)),
-    /// ∂t/∂ln r = −(t − `t_m`), ∂t/∂`t_m` = 1.
+    /// The gradient comes from the implicit function theorem: f(t; θ) = L
+    /// gives ∂t/∂θ = −(∂f/∂θ) / (∂f/∂t), with ∂f/∂t = f · d ln f/dt.
     #[must_use]
     pub fn time_to_reach(&self, level: T) -> Option<Measured<T>> {
-        let l = level - self.blank;
-        let k = self.theta[0].exp();
-        let r = self.theta[1].exp();
-        if !(l > T::ZERO && l < k) {
-            return None;
-        }
-        let dt = (l / (k - l)).ln() / r;
-        let g = [-k / (r * (k - l)), -dt, T::ONE];
-        let value = self.theta[2] + dt + self.origin_h;
-        let sd = self.covariance.sd_along(&g);
-        (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
+        self.time_to(level - self.blank, false)
     }
 
     /// Time (hours, caller's clock) at which the fitted curve reaches the
     /// fraction `fraction` of the capacity above blank, with its standard
-    /// deviation: `t_m` + ln(p / (1 − p)) / r, so only r and `t_m` carry
-    /// uncertainty. `None` unless 0 < fraction < 1.
+    /// deviation. The level moves with the capacity, so
+    /// ∂t/∂θ = −(∂f/∂θ − p K e₀) / (∂f/∂t), e₀ the ln K direction. `None`
+    /// unless 0 < fraction < 1.
     #[must_use]
     pub fn time_to_fraction(&self, fraction: T) -> Option<Measured<T>> {
         if !(fraction > T::ZERO && fraction < T::ONE) {
             return None;
         }
-        let r = self.theta[1].exp();
-        let dt = (fraction / (T::ONE - fraction)).ln() / r;
-        let g = [T::ZERO, -dt, T::ONE];
-        let value = self.theta[2] + dt + self.origin_h;
+        self.time_to(fraction * self.curve.capacity(), true)
+    }
+
+    fn time_to(&self, level: T, moves_with_capacity: bool) -> Option<Measured<T>> {
+        let t = self.curve.time_to_level(level)?;
+        let (f, mut g, _) = self.curve.eval(t);
+        if moves_with_capacity {
+            g[0] -= level;
+        }
+        let slope = f * self.curve.specific_rate_per_h(t);
+        if !(slope > T::ZERO) {
+            return None;
+        }
+        for v in &mut g {
+            *v = -*v / slope;
+        }
+        let value = t + self.origin_h;
         let sd = self.covariance.sd_along(&g);
         (value.is_finite() && sd.is_finite()).then_some(Measured { value, sd })
     }
@@ -260,7 +325,7 @@ mod tests {
     /// by the `reading_path` fuzzer as capacity sd = +∞.
     #[test]
     fn huge_spreads_stay_finite() {
-        let e = Estimate::<f32> {
+        let e = Estimate::<f32, 3, crate::Logistic<f32>> {
             capacity: None,
             rate_per_h: Measured {
                 value: 1.0,
@@ -272,17 +337,23 @@ mod tests {
             },
             inflection_time_h: None,
             lag_h: None,
+            shape: None,
             fitted_value: Measured {
                 value: 1.0,
                 sd: 1.0,
             },
             latest_time_h: 0.0,
             noise_scale: 1.0,
+            noise_floor: 0.003,
+            noise_fraction: 0.01,
             readings: 10,
             theta: [80.0, 0.0, 0.0],
-            covariance: Sym3([1e8, 0.0, 0.0, 1.0, 0.0, 1e30]),
+            covariance: Sym([[1e8, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1e30]]),
             origin_h: 0.0,
             blank: 0.0,
+            blank_sd: 0.0,
+            blank_source: BlankSource::Configured,
+            curve: crate::Logistic::from_theta(&[80.0, 0.0, 0.0]),
         };
         let k = e.capacity_unchecked();
         assert!(

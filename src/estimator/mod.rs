@@ -66,17 +66,19 @@ mod estimate;
 pub(crate) mod fit;
 mod history;
 
-pub use config::EstimatorConfig;
-pub use estimate::{Estimate, Measured, Outcome, Rejection};
+mod noise;
 
-use config::MAX_HELD;
-use fit::{
-    Curve, Prior, Sym3, accumulate, clamp_theta, limit_step, model, objective, robust_sse, saturate,
-};
+pub use config::{DEFAULT_UNKNOWN_BLANK_SD, EstimatorConfig};
+pub use estimate::{BlankSource, Estimate, Measured, Outcome, Rejection};
+
+use config::{MAX_HELD, NoiseModel};
+use fit::{Prior, Sym, accumulate, objective, panels, robust_sse, saturate};
 use history::History;
+use noise::NoiseLearner;
 
-use crate::Real;
 use crate::math::{median3, sort_small};
+use crate::model::{LagRichards, OnlineFamily};
+use crate::{Error, Logistic, Real};
 
 /// Most extra Levenberg–Marquardt iterations per reading while the fit is
 /// still moving (see `refit`).
@@ -88,7 +90,10 @@ const INNOVATION_MEMORY: u32 = 64;
 const MIN_INNOVATIONS: u32 = 16;
 
 /// The online growth-curve estimator. `T` is the float type (`f32` on the
-/// device), `N` the number of history slots (8 to 255, default 16: with slots modelled as span averages, 16 slots matched the Cramér–Rao bound as well as 32 or 48 in our measurements, see the README).
+/// device), `N` the number of history slots (8 to 255, default 16: with slots modelled as span averages, 16 slots matched the Cramér–Rao bound as well as 32 or 48 in our measurements, see the README),
+/// `F` the growth-curve family it fits and `P` that family's parameter count:
+/// by default [`LagRichards`] (P = 5: logistic, Richards asymmetry and a
+/// Baranyi-type lag); [`LogisticEstimator`] fits the plain logistic (P = 3).
 ///
 /// Memory: fixed, `core::mem::size_of::<Estimator>()` bytes (see the README's
 /// footprint table); nothing is allocated.
@@ -100,7 +105,8 @@ const MIN_INNOVATIONS: u32 = 16;
 /// // An invented culture: capacity 1.5 OD, 0.7 per hour, midpoint at 8 h,
 /// // read every 10 minutes (noise-free here to keep the example short).
 /// let truth = Logistic::<f64>::from_midpoint(1.5, 0.7, 8.0)?;
-/// let mut estimator = Estimator::<f32>::new(EstimatorConfig::new());
+/// let config = EstimatorConfig::new().blank(0.0)?;
+/// let mut estimator = Estimator::<f32>::new(config);
 /// for i in 0..=120 {
 ///     let t = f64::from(i) / 6.0;
 ///     let outcome = estimator.update(t as f32, truth.value(t) as f32);
@@ -109,14 +115,21 @@ const MIN_INNOVATIONS: u32 = 16;
 /// let estimate = estimator.estimate().expect("growth seen");
 /// let capacity = estimate.capacity.expect("plateau in sight");
 /// assert!((capacity.value - 1.5).abs() < 0.01);
-/// assert!((estimate.rate_per_h.value - 0.7).abs() < 0.01);
+/// // μmax: the largest d ln y/dt of the fitted curve, r (1 − y0/K) for a
+/// // logistic read from t = 0.
+/// assert!((estimate.rate_per_h.value - 0.7).abs() < 0.02);
 /// // Time to 90 % of capacity: 8 + ln 9 / 0.7 = 11.139 h.
 /// let t90 = estimate.time_to_fraction(0.9).unwrap();
 /// assert!((t90.value - 11.139).abs() < 0.05);
 /// # Ok::<(), plateau::Error>(())
 /// ```
 #[derive(Clone, Debug)]
-pub struct Estimator<T: Real = f32, const N: usize = 16> {
+pub struct Estimator<
+    T: Real = f32,
+    const N: usize = 16,
+    const P: usize = 5,
+    F: OnlineFamily<T, P> = LagRichards<T>,
+> {
     config: EstimatorConfig<T>,
     history: History<T, N>,
     /// Clock value (hours) of the first reading since the last restart.
@@ -126,8 +139,15 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     /// Smallest and largest accepted value above blank since the restart.
     low: T,
     high: T,
-    theta: [T; 3],
-    covariance: Sym3<T>,
+    theta: [T; P],
+    covariance: Sym<T, P>,
+    /// How θ moves with the blank's error: per signal unit of a measured
+    /// blank (`info⁻¹ · JᵀW·1`), or the shadow fit's secant for an unknown
+    /// one (see `shadow_fit`).
+    blank_shift: [T; P],
+    /// The shadow fit's θ (unknown blank), and whether it has one.
+    shadow_theta: [T; P],
+    shadow_ready: bool,
     noise_scale2: T,
     damping: T,
     fitted: bool,
@@ -141,22 +161,33 @@ pub struct Estimator<T: Real = f32, const N: usize = 16> {
     /// The last three accepted values above blank (ring), for the gate
     /// before the first fit.
     recent: [T; 3],
-    /// Median of the first three accepted values above blank, the time of
-    /// the reading that gave it (hours since origin), and the times of those
-    /// first readings.
+    /// Median of the first three accepted values above blank.
     first_median: T,
-    first_median_time_h: T,
-    first_times_h: [T; 3],
     /// Running mean of squared standardised innovations, and how many.
     innovation_z2: T,
     innovations: u32,
     /// Accepted readings since the last full refit.
     since_refit: u8,
-    /// θ with K and r exponentiated, kept in step with `theta`.
-    curve: Curve<T>,
+    /// The curve at θ, kept in step with `theta`.
+    curve: F,
+    /// The noise model in use (learnt from the innovations when
+    /// `learn_noise` is on).
+    noise: NoiseModel<T>,
+    learner: NoiseLearner<T>,
+    /// The blank in use, its sd, and the blank phase's running sums.
+    blank: T,
+    blank_sd: T,
+    blank_source: BlankSource,
+    blank_count: u32,
+    blank_mean: T,
+    blank_m2: T,
 }
 
-impl<T: Real, const N: usize> Estimator<T, N> {
+/// The estimator fitting the plain logistic (3 parameters): the family of
+/// the Cramér–Rao comparisons, and the cheapest.
+pub type LogisticEstimator<T = f32, const N: usize = 16> = Estimator<T, N, 3, Logistic<T>>;
+
+impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T, N, P, F> {
     /// A new estimator with no readings.
     #[must_use]
     pub fn new(config: EstimatorConfig<T>) -> Self {
@@ -167,8 +198,11 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             latest_h: T::ZERO,
             low: T::INFINITY,
             high: T::ZERO,
-            theta: [T::ZERO; 3],
-            covariance: Sym3::zero(),
+            theta: [T::ZERO; P],
+            covariance: Sym::zero(),
+            blank_shift: [T::ZERO; P],
+            shadow_theta: [T::ZERO; P],
+            shadow_ready: false,
             noise_scale2: T::ONE,
             damping: T::from_f64(1e-3),
             fitted: false,
@@ -180,12 +214,22 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             behind: 0,
             recent: [T::ZERO; 3],
             first_median: T::ZERO,
-            first_median_time_h: T::ZERO,
-            first_times_h: [T::ZERO; 3],
             innovation_z2: T::ZERO,
             innovations: 0,
             since_refit: 0,
-            curve: Curve::new(&[T::ZERO; 3]),
+            curve: F::from_theta(&[T::ZERO; P]),
+            noise: config.noise_model(),
+            learner: NoiseLearner::new(),
+            blank: config.blank,
+            blank_sd: config.blank_sd,
+            blank_source: if config.blank_known {
+                BlankSource::Configured
+            } else {
+                BlankSource::Unknown
+            },
+            blank_count: 0,
+            blank_mean: T::ZERO,
+            blank_m2: T::ZERO,
         }
     }
 
@@ -195,9 +239,75 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         &self.config
     }
 
-    /// Forgets every reading (for a new culture); keeps the configuration.
+    /// Forgets every reading (for a new culture), the blank phase's too;
+    /// keeps the configuration.
     pub fn reset(&mut self) {
         *self = Self::new(self.config);
+    }
+
+    /// A restart (dilution, clock reset): a new culture in the same vessel,
+    /// so the blank (configured or measured) and the learnt noise model stay.
+    fn restart(&mut self) {
+        let kept = (
+            self.blank,
+            self.blank_sd,
+            self.blank_source,
+            self.blank_count,
+            self.blank_mean,
+            self.blank_m2,
+            self.noise,
+            self.learner,
+        );
+        *self = Self::new(self.config);
+        (
+            self.blank,
+            self.blank_sd,
+            self.blank_source,
+            self.blank_count,
+            self.blank_mean,
+            self.blank_m2,
+            self.noise,
+            self.learner,
+        ) = kept;
+    }
+
+    /// Feeds one blank reading: the medium alone, read before inoculation
+    /// (signal units). The blank in use becomes the mean of the blank
+    /// readings, with its standard error; it replaces a configured blank.
+    /// Returns the blank so far.
+    ///
+    /// # Errors
+    /// [`Error::NotFinite`] for a NaN or infinite value;
+    /// [`Error::OutOfRange`] (parameter `blank_reading`) once culture
+    /// readings have started: a blank phase comes before the culture.
+    pub fn blank_reading(&mut self, value: T) -> Result<Measured<T>, Error> {
+        let value = crate::error::finite(value, "blank_reading")?;
+        if self.accepted > 0 || self.history.len() > 0 {
+            return Err(Error::OutOfRange {
+                parameter: "blank_reading",
+            });
+        }
+        // Welford's running mean and sum of squares (Welford 1962).
+        self.blank_count = self.blank_count.saturating_add(1);
+        let n = T::from_u32(self.blank_count);
+        let delta = value - self.blank_mean;
+        self.blank_mean += delta / n;
+        self.blank_m2 += delta * (value - self.blank_mean);
+        // The standard error of the mean: from the readings' own spread once
+        // there are three, never below the noise model's floor over √n.
+        let floor = self.noise.sd(T::ZERO);
+        let spread = if self.blank_count >= 3 {
+            (self.blank_m2 / (n - T::ONE)).max(T::ZERO).sqrt()
+        } else {
+            T::ZERO
+        };
+        self.blank = self.blank_mean;
+        self.blank_sd = spread.max(floor) / n.sqrt();
+        self.blank_source = BlankSource::Measured;
+        Ok(Measured {
+            value: self.blank,
+            sd: self.blank_sd,
+        })
     }
 
     /// Feeds one reading: `time_h` in hours on any clock that does not run
@@ -215,8 +325,10 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             return Outcome::Rejected(Rejection::NotFinite);
         }
         // Near the blank, noise legitimately reads a little below it; only a
-        // value further below than the gate allows for noise is invalid.
-        if value < self.config.blank - self.config.gate_sigma * self.config.noise_floor {
+        // value further below than the gate allows for noise (and for the
+        // blank's own uncertainty) is invalid.
+        let below = self.config.gate_sigma * (self.noise.sd(T::ZERO) + self.blank_sd);
+        if value < self.blank - below {
             return Outcome::Rejected(Rejection::Negative);
         }
         if value >= self.config.ceiling {
@@ -236,23 +348,23 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             if self.behind < self.config.max_consecutive_rejections {
                 return Outcome::Rejected(Rejection::TimeBackwards);
             }
-            *self = Self::new(self.config);
+            self.restart();
             self.origin_h = time_h;
-            self.accept(T::ZERO, value - self.config.blank, None);
+            self.accept(T::ZERO, value - self.blank, None);
             return Outcome::Restarted;
         }
         self.behind = 0;
-        let y = value - self.config.blank;
+        let y = value - self.blank;
 
         // With a fit, the model is evaluated once here and shared by the gate,
-        // the noise-scale tracker and the recursive step.
+        // the noise trackers and the recursive step.
         let fitted = self.fitted.then(|| {
             let (f, g, _) = self.curve.eval(t);
             (f, g, self.covariance.quadratic(&g).max(T::ZERO))
         });
         let prediction = match fitted {
             Some((f, _, fit_var)) => {
-                let noise = self.config.noise_sd(f) * self.noise_scale2.max(T::ONE).sqrt();
+                let noise = self.noise.sd(f) * self.noise_scale2.max(T::ONE).sqrt();
                 Some((f, noise * noise + fit_var))
             }
             None => self.early_prediction(t),
@@ -265,7 +377,16 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         self.held_len = 0;
         if let Some((f, _, fit_var)) = fitted {
-            self.track_innovation(y - f, fit_var, self.config.noise_sd(f));
+            let sd = self.noise.sd(f);
+            self.track_innovation(y - f, fit_var, sd);
+            // Only a fit that has placed the capacity: before that the
+            // innovations carry the fit's own misfit.
+            if self.config.learn_noise && self.capacity_published() {
+                let e = y - f;
+                let cap = T::from_f64(9.0) * self.noise_scale2.max(T::ONE) * sd * sd;
+                self.learner
+                    .observe(f, (e * e - fit_var).max(T::ZERO), sd * sd, cap);
+            }
         }
         self.accept(t, y, fitted.map(|(f, g, _)| (f, g)));
         Outcome::Accepted
@@ -304,7 +425,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             return None;
         }
         let median = median3(self.recent);
-        let noise = self.config.noise_sd(median);
+        let noise = self.noise.sd(median);
         let growth = median * ((self.config.max_rate_per_h * (t - self.latest_h)).exp() - T::ONE);
         Some((median, noise * noise + growth * growth))
     }
@@ -347,7 +468,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             let (times, values) = (self.held_time_h, self.held_value);
             let first = times[0];
             let origin = self.origin_h + first;
-            *self = Self::new(self.config);
+            self.restart();
             self.origin_h = origin;
             for k in 0..run {
                 self.accept(times[k] - first, values[k], None);
@@ -381,7 +502,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         let median = values[run / 2];
         let span_h = self.held_time_h[run - 1] - self.held_time_h[0];
         let growth = (self.config.max_rate_per_h * span_h.max(T::ZERO)).exp();
-        let band = self.config.gate_sigma * self.config.noise_sd(median);
+        let band = self.config.gate_sigma * self.noise.sd(median);
         values
             .iter()
             .all(|&v| v >= median / growth - band && v <= median * growth + band)
@@ -389,28 +510,23 @@ impl<T: Real, const N: usize> Estimator<T, N> {
 
     /// Takes a reading into the history and updates the fit. `model_at_t`
     /// is the fitted value and gradient at `t` when the caller has them.
-    fn accept(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) {
-        let config = self.config;
-        self.history.push(t, y, |v| config.noise_sd(v));
+    fn accept(&mut self, t: T, y: T, model_at_t: Option<(T, [T; P])>) {
+        let noise = self.noise;
+        self.history.push(t, y, |v| noise.sd(v));
         self.latest_h = self.latest_h.max(t);
         let slot = usize::try_from(self.accepted % 3).unwrap_or(0);
         self.recent[slot] = y;
-        if self.accepted < 3 {
-            self.first_times_h[slot] = t;
-        }
         self.accepted = self.accepted.saturating_add(1);
         if self.accepted == 3 {
             self.first_median = median3(self.recent);
-            // The time of the reading that gave the median.
-            let i = (0..3)
-                .find(|&i| !(self.recent[i] != self.first_median))
-                .unwrap_or(1);
-            self.first_median_time_h = self.first_times_h[i];
         }
         if y > T::ZERO {
             self.low = self.low.min(y);
         }
         self.high = self.high.max(y);
+        if self.config.learn_noise && self.fitted {
+            self.noise = self.learner.model(&self.config.noise_model(), self.high);
+        }
         if !self.fitted {
             self.try_first_fit();
         } else if self.since_refit.saturating_add(1) >= self.config.refit_every
@@ -432,12 +548,18 @@ impl<T: Real, const N: usize> Estimator<T, N> {
     /// false, leaving the state unchanged, if the reading is surprising
     /// (innovation beyond 3 sd) or the update is not numerically sound; the
     /// caller then refits at once.
-    fn recursive_step(&mut self, t: T, y: T, model_at_t: Option<(T, [T; 3])>) -> bool {
-        let (f, g) = model_at_t.unwrap_or_else(|| model(&self.theta, t));
-        let noise = self.config.noise_sd(f);
+    fn recursive_step(&mut self, t: T, y: T, model_at_t: Option<(T, [T; P])>) -> bool {
+        let (f, g) = model_at_t.unwrap_or_else(|| {
+            let (f, g, _) = self.curve.eval(t);
+            (f, g)
+        });
+        let noise = self.noise.sd(f);
         let r = noise * noise * self.noise_scale2;
         let pg = self.covariance.times(&g);
-        let innovation_var = g[0] * pg[0] + g[1] * pg[1] + g[2] * pg[2] + r;
+        let mut innovation_var = r;
+        for i in 0..P {
+            innovation_var += g[i] * pg[i];
+        }
         if !(innovation_var > T::ZERO) || !innovation_var.is_finite() {
             return false;
         }
@@ -448,37 +570,32 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if e * e > T::from_f64(9.0) * innovation_var {
             return false;
         }
-        let mut step = [
-            pg[0] * e / innovation_var,
-            pg[1] * e / innovation_var,
-            pg[2] * e / innovation_var,
-        ];
-        limit_step(&mut step, &self.theta);
-        let mut theta = [
-            self.theta[0] + step[0],
-            self.theta[1] + step[1],
-            self.theta[2] + step[2],
-        ];
-        clamp_theta(&mut theta, self.ln_rate_max());
+        let mut step = [T::ZERO; P];
+        for i in 0..P {
+            step[i] = pg[i] * e / innovation_var;
+        }
+        F::limit_step(&mut step, &self.theta);
+        let mut theta = self.theta;
+        for i in 0..P {
+            theta[i] += step[i];
+        }
+        F::clamp(&mut theta, self.ln_rate_max());
         let covariance = self.covariance.minus_outer(&pg, T::ONE / innovation_var);
         if !covariance.is_positive_definite() {
             return false;
         }
         self.theta = theta;
-        self.curve = Curve::new(&theta);
+        self.curve = F::from_theta(&theta);
         self.covariance = covariance;
         true
     }
 
-    fn prior(&self) -> Prior<T> {
-        let y_max = self.high.max(T::EPSILON);
-        Prior {
-            ln_k_mean: (T::TWO * y_max).ln(),
-            ln_k_info: T::from_f64(0.25),
-        }
+    fn prior(&self) -> Prior<T, P> {
+        let (mean, info) = F::prior(self.high.max(T::EPSILON));
+        Prior { mean, info }
     }
 
-    /// Upper bound of the fitted ln r: four times `max_rate_per_h`. Without
+    /// Upper bound of the fitted ln rate: four times `max_rate_per_h`. Without
     /// it a first fit to a lag phase and a couple of rising readings can
     /// settle on a near-step (r in the hundreds per hour), where the
     /// gradients vanish and no refit can leave.
@@ -493,11 +610,12 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         // or over the noise floor when the culture started below it.
         // The growth must also stand out of the noise: five noise sds above
         // the start, so a noisy start near the floor cannot fake it.
-        let start = self.first_median.max(self.config.noise_floor);
+        let floor = self.noise.sd(T::ZERO);
+        let start = self.first_median.max(floor);
         let now = median3(self.recent);
         if n < usize::from(self.config.min_readings)
             || !(now > self.config.min_growth_ratio * start)
-            || !(now - start > T::from_f64(5.0) * self.config.noise_sd(start))
+            || !(now - start > T::from_f64(5.0) * self.noise.sd(start))
         {
             return;
         }
@@ -510,7 +628,7 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         for i in 0..n {
             let (t, y, c) = self.history.slot(i);
             let w = T::from_u32(u32::from(c));
-            if y > T::from_f64(3.0) * self.config.noise_sd(y) / w.sqrt() {
+            if y > T::from_f64(3.0) * self.noise.sd(y) / w.sqrt() {
                 let ly = y.ln();
                 sw += w;
                 st += w * t;
@@ -531,11 +649,10 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         rate = rate.min(self.config.max_rate_per_h);
         let k = T::from_f64(4.0) * self.high;
         let (t_last, y_last, _) = self.history.slot(n - 1);
-        let y_last = y_last.max(self.low);
-        let midpoint = t_last + (k / y_last - T::ONE).ln() / rate;
-        self.theta = [k.ln(), rate.ln(), midpoint];
+        let y_last = y_last.max(self.low).min(k * T::HALF);
+        self.theta = F::start(k, rate, t_last, y_last);
         let ln_rate_max = self.ln_rate_max();
-        clamp_theta(&mut self.theta, ln_rate_max);
+        F::clamp(&mut self.theta, ln_rate_max);
         self.damping = T::from_f64(1e-2);
         self.fitted = true;
         self.refit(16);
@@ -549,33 +666,46 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
     }
 
-    fn refit(&mut self, iterations: u8) {
+    /// Levenberg–Marquardt from `theta` on the history with every slot
+    /// value lowered by `offset` (signal units; 0 for the fit itself, the
+    /// blank's plausible height for the shadow fit): `iterations` steps,
+    /// then up to `EXTRA_ITERATIONS` more while a step still cuts the
+    /// objective by over 1 % (after a long gap or a run of surprising
+    /// readings): bounded, and cheap once converged. Returns θ, the damping
+    /// to start from next time, the normal equations at θ and the squared
+    /// standardised slot residuals.
+    fn solve(
+        &self,
+        mut theta: [T; P],
+        mut damping: T,
+        iterations: u8,
+        offset: T,
+    ) -> ([T; P], T, fit::Normal<T, P>, [T; N]) {
         let prior = self.prior();
         let mut weights = [T::ZERO; N];
         let mut z2 = [T::ZERO; N];
-        let n = self.history.len();
         let scale = self.noise_scale2.max(T::from_f64(0.01)).sqrt();
         // Each reading starts from a moderate damping: a damping left high by
         // earlier failed trials would otherwise shrink every step below what
         // the objective can resolve, and the fit would freeze.
-        self.damping = self.damping.min(T::ONE);
-        // One pass of the normal equations at θ (captures only the history
-        // and the config, so θ and the damping stay free to change).
-        let normal_at = |theta: &[T; 3], weights: &mut [T; N], z2: &mut [T; N]| {
-            accumulate(
+        damping = damping.min(T::ONE);
+        let noise = self.noise;
+        // Panels are counted once, at the starting θ, for every pass.
+        let panels = panels::<T, F, P, N>(&self.history, &F::from_theta(&theta));
+        let normal_at = |theta: &[T; P], weights: &mut [T; N], z2: &mut [T; N]| {
+            accumulate::<T, F, P, N>(
                 &self.history,
-                &self.config,
+                &noise,
                 theta,
                 &prior,
                 scale,
+                offset,
+                &panels,
                 weights,
                 z2,
             )
         };
-        let mut normal = normal_at(&self.theta, &mut weights, &mut z2);
-        // `iterations` steps, then up to EXTRA_ITERATIONS more while a step
-        // still cuts the objective by over 1 % (after a long gap or a run of
-        // surprising readings): bounded, and cheap once converged.
+        let mut normal = normal_at(&theta, &mut weights, &mut z2);
         let ln_rate_max = self.ln_rate_max();
         let mut moving = true;
         for iteration in 0..iterations.saturating_add(EXTRA_ITERATIONS) {
@@ -585,37 +715,53 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             let current = normal.objective;
             let mut improved = false;
             for _ in 0..4 {
-                let Some(mut step) = normal.info.solve(&normal.gradient, self.damping) else {
-                    self.damping *= T::from_f64(10.0);
+                let Some(mut step) = normal.info.solve(&normal.gradient, damping) else {
+                    damping *= T::from_f64(10.0);
                     continue;
                 };
-                limit_step(&mut step, &self.theta);
-                let mut trial = [
-                    self.theta[0] + step[0],
-                    self.theta[1] + step[1],
-                    self.theta[2] + step[2],
-                ];
-                clamp_theta(&mut trial, ln_rate_max);
-                let value = objective(&self.history, &trial, &prior, &weights);
+                F::limit_step(&mut step, &theta);
+                let mut trial = theta;
+                for i in 0..P {
+                    trial[i] += step[i];
+                }
+                F::clamp(&mut trial, ln_rate_max);
+                let value = objective::<T, F, P, N>(
+                    &self.history,
+                    &trial,
+                    &prior,
+                    offset,
+                    &panels,
+                    &weights,
+                );
                 if value <= current {
                     moving = current - value > T::from_f64(0.01) * current;
-                    self.theta = trial;
-                    self.damping = (self.damping * T::from_f64(0.3)).max(T::from_f64(1e-6));
+                    theta = trial;
+                    damping = (damping * T::from_f64(0.3)).max(T::from_f64(1e-6));
                     improved = true;
                     break;
                 }
-                self.damping = (self.damping * T::from_f64(4.0)).min(T::from_f64(1e6));
+                damping = (damping * T::from_f64(4.0)).min(T::from_f64(1e6));
             }
             if !improved {
                 break;
             }
-            normal = normal_at(&self.theta, &mut weights, &mut z2);
+            normal = normal_at(&theta, &mut weights, &mut z2);
         }
-        self.curve = Curve::new(&self.theta);
-        // The slots' own residual scale (robust, over slots − 3 degrees of
+        (theta, damping, normal, z2)
+    }
+
+    fn refit(&mut self, iterations: u8) {
+        let n = self.history.len();
+        let (theta, damping, normal, mut z2) =
+            self.solve(self.theta, self.damping, iterations, T::ZERO);
+        self.theta = theta;
+        self.damping = damping;
+        self.shadow_fit(iterations);
+        self.curve = F::from_theta(&self.theta);
+        // The slots' own residual scale (robust, over slots − P degrees of
         // freedom), when there are enough slots.
-        let slot_s2 = (n > 5)
-            .then(|| robust_sse(&mut z2[..n]) / T::from_u32(u32::try_from(n - 3).unwrap_or(1)))
+        let slot_s2 = (n > P + 2)
+            .then(|| robust_sse(&mut z2[..n]) / T::from_u32(u32::try_from(n - P).unwrap_or(1)))
             .filter(|s2| s2.is_finite());
         // Noise scale: from the innovations once there are enough of them,
         // otherwise from the slot residuals.
@@ -626,9 +772,9 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         }
         // The covariance takes the larger of the noise scale and the slots'
         // own residual scale. With the right model they agree; when the curve
-        // is not quite a logistic (a Gompertz-like asymmetry, a lag), the
-        // merged slots average the noise away but keep the systematic misfit,
-        // and their residual scale grows: the intervals widen honestly.
+        // is not quite the family's shape, the merged slots average the
+        // noise away but keep the systematic misfit, and their residual
+        // scale grows: the intervals widen honestly.
         let cov_scale2 = slot_s2.map_or(self.noise_scale2, |s2| self.noise_scale2.max(s2));
         if let Some(inverse) = normal.info.inverse() {
             let cov = inverse.scaled(cov_scale2);
@@ -636,38 +782,77 @@ impl<T: Real, const N: usize> Estimator<T, N> {
             // rounding left indefinite.
             if cov.is_positive_definite() {
                 self.covariance = cov;
+                // A measured blank's error b shifts every reading by b, which
+                // moves the fit by b · info⁻¹ · JᵀW·1 (to first order).
+                if self.blank_source != BlankSource::Unknown {
+                    let shift = inverse.times(&normal.shift);
+                    if shift.iter().all(|v| v.is_finite()) {
+                        self.blank_shift = shift;
+                    }
+                }
             }
         }
     }
 
-    /// The lag λ − (first reading), hours, with its sd (see
-    /// [`Estimate::lag_h`]). λ = `t_m` − (ln K − ln y₀)/r, so
-    /// ∂λ/∂ln K = −1/r, ∂λ/∂ln r = ln(K/y₀)/r, ∂λ/∂`t_m` = 1 and
-    /// ∂λ/∂ln y₀ = 1/r; y₀ is the median of three readings, whose variance is
-    /// (π/2)·sd²/3 for normal noise (the median's asymptotic efficiency,
-    /// a textbook result), with sd from the noise model and learnt scale.
-    fn lag(&self, theta: &[T; 3], cov: &Sym3<T>) -> Option<Measured<T>> {
-        let y0 = self.first_median;
-        if !(y0 > T::ZERO) {
-            return None;
+    /// The shadow fit, when the blank is unknown: the same family fitted to
+    /// the readings lowered by the blank's plausible height, the smaller of
+    /// `unknown_blank_sd` and half the starting level (a blank cannot lie
+    /// above the readings). How far it lands from the fit — the secant, not
+    /// the tangent, because a blank of the size of the starting level
+    /// changes the early curve far beyond first order — is the spread the
+    /// missing blank leaves in θ. Warm-started from its last solution.
+    fn shadow_fit(&mut self, iterations: u8) {
+        let height = self.blank_height();
+        if self.blank_source != BlankSource::Unknown || !(height > T::ZERO) {
+            self.blank_shift = [T::ZERO; P];
+            return;
         }
-        let sd_y0 = self.config.noise_sd(y0) * self.noise_scale2.sqrt();
-        let var_ln_y0 = T::from_f64(core::f64::consts::FRAC_PI_2 / 3.0) * sd_y0 * sd_y0 / (y0 * y0);
-        if !(var_ln_y0 < T::from_f64(0.04)) {
-            return None;
+        let (start, its) = if self.shadow_ready {
+            (self.shadow_theta, iterations)
+        } else {
+            (self.theta, 16)
+        };
+        let (theta, _, _, _) = self.solve(start, T::from_f64(1e-3), its, height);
+        if theta.iter().all(|v| v.is_finite()) {
+            self.shadow_theta = theta;
+            self.shadow_ready = true;
+            for i in 0..P {
+                self.blank_shift[i] = theta[i] - self.theta[i];
+            }
         }
-        let r = theta[1].exp();
-        let log_ratio = theta[0] - y0.ln();
-        // Counted from the starting reading: a culture that grows from its
-        // first readings has a lag of zero, not minus the minutes it took to
-        // take them.
-        let value = theta[2] - log_ratio / r - self.first_median_time_h;
-        let g = [-T::ONE / r, log_ratio / r, T::ONE];
-        let var = cov.quadratic(&g) + var_ln_y0 / (r * r);
-        (value.is_finite() && var.is_finite()).then(|| Measured {
-            value,
-            sd: saturate(var.max(T::ZERO).sqrt()),
-        })
+    }
+
+    /// The blank's plausible height when it is unknown (signal units):
+    /// `unknown_blank_sd`, but at most half the starting level.
+    fn blank_height(&self) -> T {
+        let start = if self.accepted >= 3 {
+            self.first_median
+        } else {
+            self.low
+        };
+        if start.is_finite() && start > T::ZERO {
+            self.blank_sd.min(T::HALF * start)
+        } else {
+            T::ZERO
+        }
+    }
+
+    /// The covariance of θ including the blank's uncertainty, P + d dᵀ: for
+    /// a measured blank d = `blank_sd` × the fit's shift per signal unit of
+    /// blank (first order), for an unknown one the shadow fit's secant over
+    /// the blank's plausible height (taken as one sd).
+    fn total_covariance(&self) -> Sym<T, P> {
+        let weight = match self.blank_source {
+            BlankSource::Configured => return self.covariance,
+            BlankSource::Measured => self.blank_sd * self.blank_sd,
+            BlankSource::Unknown => T::ONE,
+        };
+        let total = self.covariance.plus_outer(&self.blank_shift, weight);
+        if total.is_finite() {
+            total
+        } else {
+            self.covariance
+        }
     }
 
     /// Whether the capacity is known well enough to publish: precise enough
@@ -687,57 +872,72 @@ impl<T: Real, const N: usize> Estimator<T, N> {
         if !(self.covariance.get(0, 0) < limit * limit) {
             return false;
         }
-        let k = self.curve.k;
-        let start = self.first_median.max(self.config.noise_floor);
-        k - start > T::from_f64(10.0) * self.config.noise_sd(k)
+        let k = self.curve.capacity();
+        let start = self.first_median.max(self.noise.sd(T::ZERO));
+        k - start > T::from_f64(10.0) * self.noise.sd(k)
     }
 
     /// The current estimate, or `None` before the readings show growth.
     #[must_use]
-    pub fn estimate(&self) -> Option<Estimate<T>> {
+    pub fn estimate(&self) -> Option<Estimate<T, P, F>> {
         if !self.fitted {
             return None;
         }
         let theta = self.theta;
-        let cov = self.covariance;
-        let k = theta[0].exp();
-        let r = theta[1].exp();
-        let sd_ln_k = cov.get(0, 0).max(T::ZERO).sqrt();
-        let sd_ln_r = cov.get(1, 1).max(T::ZERO).sqrt();
-        let capacity = Measured {
-            value: k,
-            sd: saturate(k * sd_ln_k),
+        let cov = self.total_covariance();
+        let curve = self.curve;
+        let measured = |value: T, g: &[T; P]| Measured {
+            value,
+            sd: saturate(cov.sd_along(g)),
         };
+        let k = curve.capacity();
+        let mut g_k = [T::ZERO; P];
+        g_k[0] = k;
+        let capacity = measured(k, &g_k);
         let published = self.capacity_published();
-        let inflection = Measured {
-            value: theta[2] + self.origin_h,
-            sd: cov.get(2, 2).max(T::ZERO).sqrt(),
+        let (rate, g_rate, _) = curve.max_specific_rate(&theta);
+        let rate = if rate > T::ZERO { rate } else { T::EPSILON };
+        let rate_per_h = measured(rate, &g_rate);
+        let doubling = T::LN_2 / rate;
+        let doubling_time_h = Measured {
+            value: doubling,
+            sd: saturate(doubling / rate * rate_per_h.sd),
         };
-        let lag = self.lag(&theta, &cov).filter(|_| published);
-        let (f, g) = model(&theta, self.latest_h);
+        let (t_infl, g_infl) = curve.inflection(&theta);
+        let inflection = measured(t_infl + self.origin_h, &g_infl);
+        let lag = curve
+            .tangent_lag(&theta)
+            .map(|(value, g)| measured(value, &g))
+            .filter(|m| published && m.value.is_finite());
+        let shape = curve.shape().map(|(index, nu)| {
+            let mut g = [T::ZERO; P];
+            g[index] = nu;
+            measured(nu, &g)
+        });
+        let (f, g, _) = curve.eval(self.latest_h);
         Some(Estimate {
             capacity: published.then_some(capacity),
-            rate_per_h: Measured {
-                value: r,
-                sd: saturate(r * sd_ln_r),
-            },
-            doubling_time_h: Measured {
-                value: T::LN_2 / r,
-                sd: saturate(T::LN_2 / r * sd_ln_r),
-            },
+            rate_per_h,
+            doubling_time_h,
             inflection_time_h: published.then_some(inflection),
             lag_h: lag,
+            shape,
             fitted_value: Measured {
-                value: f + self.config.blank,
+                value: f + self.blank,
                 sd: saturate(cov.sd_along(&g)),
             },
             latest_time_h: self.latest_h + self.origin_h,
             noise_scale: self.noise_scale2.sqrt(),
+            noise_floor: self.noise.floor,
+            noise_fraction: self.noise.fraction,
             readings: self.accepted,
             theta,
             covariance: cov,
             origin_h: self.origin_h,
-            blank: self.config.blank,
+            blank: self.blank,
+            blank_sd: self.blank_sd,
+            blank_source: self.blank_source,
+            curve,
         })
     }
 }

@@ -1,6 +1,7 @@
 //! The plain logistic curve on the measured signal.
 
-use super::{GrowthCurve, Inflection};
+use super::online::{sigmoid, slot_width, softplus};
+use super::{GrowthCurve, Inflection, OnlineFamily};
 use crate::error::{finite, positive};
 use crate::{Error, Real};
 
@@ -168,5 +169,142 @@ impl<T: Real> GrowthCurve<T> for Logistic<T> {
             return Err(Error::LevelNotReached);
         }
         Ok(self.midpoint_h + (level / (self.capacity - level)).ln() / self.rate_per_h)
+    }
+}
+
+/// The logistic as an online family: θ = (ln K, ln r, `t_m`), y = K·s(r (t − `t_m`))
+/// with s the logistic sigmoid. Its slot average is exact (softplus closed
+/// form), and its rate r is the maximum per-capita rate, reached at low
+/// density. This is the family of the estimator's Cramér–Rao comparisons.
+impl<T: Real> OnlineFamily<T, 3> for Logistic<T> {
+    const NAME: &'static str = "logistic";
+
+    fn from_theta(theta: &[T; 3]) -> Self {
+        Self {
+            capacity: theta[0].exp(),
+            rate_per_h: theta[1].exp(),
+            midpoint_h: theta[2],
+        }
+    }
+
+    /// Gradient: ∂f/∂ln K = f, ∂f/∂ln r = K s(1 − s) x, ∂f/∂`t_m` = −K r s(1 − s),
+    /// x = r (t − `t_m`); curvature f'' = r² f (1 − s)(1 − 2s).
+    fn eval(&self, t_h: T) -> (T, [T; 3], T) {
+        // Beyond |x| = 100 the sigmoid is saturated to far below f64
+        // precision (e^−100 ≈ 4e−44), so clamping changes no value; it keeps
+        // x finite for a time far from the midpoint (e.g. a reading at
+        // t = 3e38 h), where x·s(1 − s) was ∞·0 = NaN in the gradient.
+        let (k, r) = (self.capacity, self.rate_per_h);
+        let x = (r * (t_h - self.midpoint_h)).clamp_to(T::from_f64(-100.0), T::from_f64(100.0));
+        let s = sigmoid(x);
+        let q = s * (T::ONE - s);
+        let f = k * s;
+        let curvature = r * r * f * (T::ONE - s) * (T::ONE - T::TWO * s);
+        (f, [f, k * q * x, -k * r * q], curvature)
+    }
+
+    fn specific_rate_per_h(&self, t_h: T) -> T {
+        let x = self.rate_per_h * (t_h - self.midpoint_h);
+        self.rate_per_h * (T::ONE - sigmoid(x))
+    }
+
+    fn time_scale_h(&self) -> T {
+        T::ONE / self.rate_per_h
+    }
+
+    fn capacity(&self) -> T {
+        self.capacity
+    }
+
+    fn time_to_level(&self, level: T) -> Option<T> {
+        (level > T::ZERO && level < self.capacity)
+            .then(|| self.midpoint_h + (level / (self.capacity - level)).ln() / self.rate_per_h)
+    }
+
+    /// r, the supremum of the per-capita rate r (1 − y/K) (approached at low
+    /// density; reported at t = 0).
+    fn max_specific_rate(&self, _theta: &[T; 3]) -> (T, [T; 3], T) {
+        let r = self.rate_per_h;
+        (r, [T::ZERO, r, T::ZERO], T::ZERO)
+    }
+
+    /// The logistic has no lag of its own.
+    fn tangent_lag(&self, _theta: &[T; 3]) -> Option<(T, [T; 3])> {
+        None
+    }
+
+    fn inflection(&self, _theta: &[T; 3]) -> (T, [T; 3]) {
+        (self.midpoint_h, [T::ZERO, T::ZERO, T::ONE])
+    }
+
+    fn start(capacity: T, rate_per_h: T, time_h: T, value: T) -> [T; 3] {
+        [
+            capacity.ln(),
+            rate_per_h.ln(),
+            time_h + (capacity / value - T::ONE).ln() / rate_per_h,
+        ]
+    }
+
+    /// ln K ~ N(ln(2 y_max), 2²): a factor of e² ≈ 7.4 either way. It only
+    /// matters while the data cannot place the capacity (before the
+    /// inflection), where it keeps the fit off the ridge K → ∞.
+    fn prior(y_max: T) -> ([T; 3], [T; 3]) {
+        (
+            [(T::TWO * y_max).ln(), T::ZERO, T::ZERO],
+            [T::from_f64(0.25), T::ZERO, T::ZERO],
+        )
+    }
+
+    /// ln K within ±80 (any unit a user may pick), r between 1e-4 per hour
+    /// and `exp(ln_rate_max)` (at most 1e3 per hour), midpoint within
+    /// ±1e6 h of the origin.
+    fn clamp(theta: &mut [T; 3], ln_rate_max: T) {
+        let big = T::from_f64(80.0);
+        theta[0] = theta[0].clamp_to(-big, big);
+        theta[1] = theta[1].clamp_to(T::from_f64(-9.2), ln_rate_max.min(T::from_f64(6.9)));
+        let span = T::from_f64(1.0e6);
+        theta[2] = theta[2].clamp_to(-span, span);
+    }
+
+    /// ln K and ln r by at most 1, `t_m` by at most 3 / r.
+    fn limit_step(step: &mut [T; 3], theta: &[T; 3]) {
+        let one = T::ONE;
+        step[0] = step[0].clamp_to(-one, one);
+        step[1] = step[1].clamp_to(-one, one);
+        let tm_limit = T::from_f64(3.0) / theta[1].exp();
+        step[2] = step[2].clamp_to(-tm_limit, tm_limit);
+    }
+
+    /// Exact however wide the slot. With x = r (t − `t_m`) and the softplus
+    /// L(x) = ln(1 + eˣ), whose derivative is the sigmoid s(x):
+    /// `f̄ = K (L(xb) − L(xa)) / (xb − xa)`,
+    /// `∂f̄/∂ln K = f̄`, `∂f̄/∂t_m = K r (sa − sb) / (xb − xa)`,
+    /// `∂f̄/∂ln r = K (sb xb − sa xa − (L(xb) − L(xa))) / (xb − xa)`.
+    /// Slots narrower than 1 in x use the second-order expansion about their
+    /// mean time instead (one `exp`, and no loss of precision to the
+    /// difference of two softplus values).
+    /// Always 1: the slot average below is exact.
+    fn panels(&self, _mean_h: T, _first_h: T, _last_h: T, _count: u16) -> u8 {
+        1
+    }
+
+    fn slot(&self, mean_h: T, first_h: T, last_h: T, count: u16, _panels: u8) -> (T, [T; 3]) {
+        let width = slot_width(first_h, last_h, count);
+        let (k, r) = (self.capacity, self.rate_per_h);
+        let xa = r * (mean_h - width * T::HALF - self.midpoint_h);
+        let xb = r * (mean_h + width * T::HALF - self.midpoint_h);
+        let width_x = xb - xa;
+        if !(width_x > T::ONE) {
+            let (f, g, curvature) = self.eval(mean_h);
+            let var_t = width * width / T::from_f64(12.0);
+            return (f + T::HALF * curvature * var_t, g);
+        }
+        let (la, sa) = softplus(xa);
+        let (lb, sb) = softplus(xb);
+        let d = lb - la;
+        let f = k * d / width_x;
+        let d_tm = k * r * (sa - sb) / width_x;
+        let d_ln_r = k * (sb * xb - sa * xa - d) / width_x;
+        (f, [f, d_ln_r, d_tm])
     }
 }

@@ -39,6 +39,7 @@ pub use event::{Event, Fault, Faults, Phase, Target, TimedEvent};
 pub use watch::Watch;
 
 use crate::math::median3;
+use crate::model::OnlineFamily;
 use crate::{Error, Estimate, Measured, Outcome, Real, Rejection};
 use heapless::{Deque, Vec};
 
@@ -212,7 +213,11 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
     /// Forecast time (hours, caller's clock) at which the culture reaches
     /// target `index`, with its sd; `None` if unknown or out of reach.
     #[must_use]
-    pub fn forecast(&self, index: u8, estimate: &Estimate<T>) -> Option<Measured<T>> {
+    pub fn forecast<const P: usize, F: OnlineFamily<T, P>>(
+        &self,
+        index: u8,
+        estimate: &Estimate<T, P, F>,
+    ) -> Option<Measured<T>> {
         let state = self.targets.get(usize::from(index))?;
         forecast(state.target, estimate)
     }
@@ -239,12 +244,12 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
 
     /// Takes one reading with the estimator's outcome for it and the
     /// estimate after it. Never panics, never allocates.
-    pub fn observe(
+    pub fn observe<const P: usize, F: OnlineFamily<T, P>>(
         &mut self,
         time_h: T,
         value: T,
         outcome: Outcome,
-        estimate: Option<&Estimate<T>>,
+        estimate: Option<&Estimate<T, P, F>>,
     ) -> Report<T> {
         let mut faults = Faults::NONE;
         self.sensor_faults(&mut faults, time_h, value, outcome);
@@ -369,7 +374,10 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         (self.recent_count >= 3).then(|| median3(self.recent))
     }
 
-    fn candidate(&self, estimate: Option<&Estimate<T>>) -> Phase {
+    fn candidate<const P: usize, F: OnlineFamily<T, P>>(
+        &self,
+        estimate: Option<&Estimate<T, P, F>>,
+    ) -> Phase {
         let Some(e) = estimate else {
             return Phase::Lag;
         };
@@ -396,12 +404,12 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         }
     }
 
-    fn update_phase(
+    fn update_phase<const P: usize, F: OnlineFamily<T, P>>(
         &mut self,
         faults: &mut Faults,
         time_h: T,
         value: T,
-        estimate: Option<&Estimate<T>>,
+        estimate: Option<&Estimate<T, P, F>>,
     ) {
         let candidate = self.candidate(estimate);
         if candidate > self.phase {
@@ -437,7 +445,12 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         }
     }
 
-    fn saturation(&mut self, time_h: T, e: &Estimate<T>, eta: Option<Measured<T>>) {
+    fn saturation<const P: usize, F: OnlineFamily<T, P>>(
+        &mut self,
+        time_h: T,
+        e: &Estimate<T, P, F>,
+        eta: Option<Measured<T>>,
+    ) {
         let Some(capacity) = e.capacity else {
             return;
         };
@@ -476,7 +489,7 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
         }
     }
 
-    fn targets_due(&mut self, time_h: T, e: &Estimate<T>) {
+    fn targets_due<const P: usize, F: OnlineFamily<T, P>>(&mut self, time_h: T, e: &Estimate<T, P, F>) {
         let level_now = self.median_recent();
         let lead = self.config.alert_lead_h;
         let mut fired: [(bool, bool, T); TARGETS] = [(false, false, T::ZERO); TARGETS];
@@ -515,7 +528,10 @@ impl<T: Real, const TARGETS: usize, const EVENTS: usize> Monitor<T, TARGETS, EVE
     }
 }
 
-fn forecast<T: Real>(target: Target<T>, e: &Estimate<T>) -> Option<Measured<T>> {
+fn forecast<T: Real, const P: usize, F: OnlineFamily<T, P>>(
+    target: Target<T>,
+    e: &Estimate<T, P, F>,
+) -> Option<Measured<T>> {
     match target {
         Target::Level(v) => e.time_to_reach(v),
         Target::FractionOfCapacity(p) => {

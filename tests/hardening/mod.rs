@@ -322,8 +322,8 @@ pub fn check_estimate(e: &Estimate<f32>, context: &str) {
         cov.iter().flatten().all(|c| c.is_finite()),
         "{context}: covariance {cov:?}"
     );
-    for i in 0..3 {
-        for j in 0..3 {
+    for i in 0..cov.len() {
+        for j in 0..cov.len() {
             assert!(
                 cov[i][j].to_bits() == cov[j][i].to_bits(),
                 "{context}: covariance not symmetric {cov:?}"
@@ -336,13 +336,13 @@ pub fn check_estimate(e: &Estimate<f32>, context: &str) {
     );
 }
 
-/// The Cholesky factor of a symmetric 3×3 matrix computed in f64, or `None`
+/// The Cholesky factor of a symmetric P×P matrix computed in f64, or `None`
 /// if a pivot is not positive: the matrix is positive definite exactly when
 /// every pivot is (common practice; Golub & Van Loan, "Matrix Computations",
 /// Cholesky factorisation [memory]).
-pub fn cholesky_f64(a: &[[f32; 3]; 3]) -> Option<[[f64; 3]; 3]> {
-    let mut l = [[0.0_f64; 3]; 3];
-    for j in 0..3 {
+pub fn cholesky_f64<const P: usize>(a: &[[f32; P]; P]) -> Option<[[f64; P]; P]> {
+    let mut l = [[0.0_f64; P]; P];
+    for j in 0..P {
         let mut d = f64::from(a[j][j]);
         for k in 0..j {
             d -= l[j][k] * l[j][k];
@@ -351,7 +351,7 @@ pub fn cholesky_f64(a: &[[f32; 3]; 3]) -> Option<[[f64; 3]; 3]> {
             return None;
         }
         l[j][j] = d.sqrt();
-        for i in j + 1..3 {
+        for i in j + 1..P {
             let mut v = f64::from(a[i][j]);
             for k in 0..j {
                 v -= l[i][k] * l[j][k];

@@ -107,6 +107,25 @@ pub fn run_f32<const N: usize>(
     estimator
 }
 
+/// Feeds a stream to an f32 estimator of the plain logistic; returns it.
+pub fn run_logistic_f32<const N: usize>(
+    config: plateau::EstimatorConfig<f32>,
+    readings: &[Reading],
+) -> plateau::LogisticEstimator<f32, N> {
+    let mut estimator = plateau::LogisticEstimator::<f32, N>::new(config);
+    for r in readings {
+        estimator.update(r.time_h as f32, r.value as f32);
+    }
+    estimator
+}
+
+/// The maximum specific growth rate of a logistic read from `t0_h` on: the
+/// largest d ln y/dt = r (1 − y/K) over the run, at its first reading
+/// (FACTS.md: the per-capita rate of the logistic is r (1 − y/K)).
+pub fn logistic_mu_max(curve: &Logistic<f64>, t0_h: f64) -> f64 {
+    curve.rate_per_h() * (1.0 - curve.value(t0_h) / curve.capacity())
+}
+
 /// Cramér–Rao standard deviations of capacity, rate and midpoint for the
 /// logistic on the given times with per-reading sd = floor + fraction × y:
 /// the inverse of the Fisher information `JᵀWJ`, with the partial derivatives
