@@ -9,7 +9,7 @@
 
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
 use nalgebra::{DMatrix, DVector, Dyn, Matrix3, OMatrix, OVector, Owned, U3, Vector3};
-use plateau::Logistic;
+use plateau::{Logistic, OnlineFamily};
 
 /// Why a fit could not be made.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -466,6 +466,94 @@ pub trait BatchFamily<const P: usize> {
 
     /// Maximum specific growth rate, per hour, and its gradient in θ.
     fn max_specific_rate(&self, theta: &[f64; P]) -> (f64, [f64; P]);
+
+    /// A prior on θ from the data: for each parameter its mean and its
+    /// information (1 / variance; 0 for none), added to the weighted sum of
+    /// squares as (θᵢ − meanᵢ)² · informationᵢ. `None` (the default): plain
+    /// least squares.
+    fn prior(&self, _times: &[f64], _values: &[f64]) -> Option<([f64; P], [f64; P])> {
+        None
+    }
+}
+
+/// Any [`OnlineFamily`] the estimator fits, as a [`BatchFamily`]: the
+/// family's own value, gradient, capacity, μmax and priors (so the batch fit
+/// is the online model fitted to all readings at once, and no formula is
+/// written twice). θ is the family's; times are hours since the first
+/// reading, the family's origin, as in the estimator. Starting points: the
+/// family's own start through the reading nearest half the largest one, at
+/// three rates.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Online<F> {
+    origin_h: f64,
+    family: core::marker::PhantomData<F>,
+}
+
+impl<F> Online<F> {
+    /// The family with its time origin at `origin_h` hours (the first
+    /// reading's time).
+    #[must_use]
+    pub const fn new(origin_h: f64) -> Self {
+        Self {
+            origin_h,
+            family: core::marker::PhantomData,
+        }
+    }
+}
+
+/// The family's curve at θ, after the family's own clamp.
+fn online_curve<F: OnlineFamily<f64, P>, const P: usize>(theta: &[f64; P]) -> F {
+    let mut t = *theta;
+    F::clamp(&mut t, f64::INFINITY);
+    F::from_theta(&t)
+}
+
+impl<F: OnlineFamily<f64, P>, const P: usize> BatchFamily<P> for Online<F> {
+    fn name(&self) -> &'static str {
+        F::NAME
+    }
+    fn value_and_gradient(&self, theta: &[f64; P], t_h: f64) -> (f64, [f64; P]) {
+        let (f, g, _) = online_curve::<F, P>(theta).eval(t_h - self.origin_h);
+        (f, g)
+    }
+    fn starts(&self, times: &[f64], values: &[f64]) -> Vec<[f64; P]> {
+        let y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let Some((&t_half, &y_half)) =
+            times
+                .iter()
+                .zip(values)
+                .filter(|(_, y)| **y > 0.0)
+                .min_by(|a, b| {
+                    (a.1 - y_max / 2.0)
+                        .abs()
+                        .total_cmp(&(b.1 - y_max / 2.0).abs())
+                })
+        else {
+            return Vec::new();
+        };
+        [0.3, 0.7, 1.5]
+            .iter()
+            .map(|&rate| F::start(1.05 * y_max, rate, t_half - self.origin_h, y_half))
+            .collect()
+    }
+    fn admissible(&self, theta: &[f64; P]) -> bool {
+        let mut t = *theta;
+        F::clamp(&mut t, f64::INFINITY);
+        t == *theta && theta.iter().all(|x| x.is_finite())
+    }
+    fn capacity(&self, theta: &[f64; P]) -> (f64, [f64; P]) {
+        // θ₀ = ln K (the trait's convention).
+        let k = online_curve::<F, P>(theta).capacity();
+        (k, core::array::from_fn(|i| if i == 0 { k } else { 0.0 }))
+    }
+    fn max_specific_rate(&self, theta: &[f64; P]) -> (f64, [f64; P]) {
+        let (mu, g, _) = online_curve::<F, P>(theta).max_specific_rate(theta);
+        (mu, g)
+    }
+    fn prior(&self, _times: &[f64], values: &[f64]) -> Option<([f64; P], [f64; P])> {
+        let y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        Some(F::prior(y_max))
+    }
 }
 
 /// The plain logistic as a [`BatchFamily`]: θ = (K, r, `t_m`), the same
@@ -544,6 +632,8 @@ struct FamilyProblem<'a, F, const P: usize> {
     times: &'a [f64],
     values: &'a [f64],
     sqrt_w: &'a [f64],
+    /// Prior means and √information, appended as P extra residuals.
+    prior: Option<([f64; P], [f64; P])>,
     p: DVector<f64>,
 }
 
@@ -570,24 +660,40 @@ impl<F: BatchFamily<P>, const P: usize> LeastSquaresProblem<f64, Dyn, Dyn>
 
     fn residuals(&self) -> Option<DVector<f64>> {
         let theta = self.theta();
-        let res = DVector::from_iterator(
-            self.times.len(),
-            self.times
-                .iter()
-                .zip(self.values)
-                .zip(self.sqrt_w)
-                .map(|((&t, &y), &s)| s * (self.family.value_and_gradient(&theta, t).0 - y)),
-        );
+        let n = self.times.len();
+        let extra = if self.prior.is_some() { P } else { 0 };
+        let mut res = DVector::<f64>::zeros(n + extra);
+        for (i, ((&t, &y), &s)) in self
+            .times
+            .iter()
+            .zip(self.values)
+            .zip(self.sqrt_w)
+            .enumerate()
+        {
+            res[i] = s * (self.family.value_and_gradient(&theta, t).0 - y);
+        }
+        if let Some((mean, root_info)) = &self.prior {
+            for k in 0..P {
+                res[n + k] = root_info[k] * (theta[k] - mean[k]);
+            }
+        }
         res.iter().all(|x| x.is_finite()).then_some(res)
     }
 
     fn jacobian(&self) -> Option<DMatrix<f64>> {
         let theta = self.theta();
-        let mut j = DMatrix::<f64>::zeros(self.times.len(), P);
+        let n = self.times.len();
+        let extra = if self.prior.is_some() { P } else { 0 };
+        let mut j = DMatrix::<f64>::zeros(n + extra, P);
         for (i, (&t, &s)) in self.times.iter().zip(self.sqrt_w).enumerate() {
             let g = self.family.value_and_gradient(&theta, t).1;
             for c in 0..P {
                 j[(i, c)] = s * g[c];
+            }
+        }
+        if let Some((_, root_info)) = &self.prior {
+            for k in 0..P {
+                j[(n + k, k)] = root_info[k];
             }
         }
         j.iter().all(|x| x.is_finite()).then_some(j)
@@ -596,7 +702,11 @@ impl<F: BatchFamily<P>, const P: usize> LeastSquaresProblem<f64, Dyn, Dyn>
 
 /// Fits any [`BatchFamily`] by (weighted) least squares with
 /// Levenberg–Marquardt from each of the family's starting points, keeping
-/// the lowest SSE; covariance σ̂² (JᵀWJ)⁻¹ with σ̂² = SSE / (n − P).
+/// the lowest objective; covariance σ̂² (JᵀWJ + Λ)⁻¹ with
+/// σ̂² = SSE / (n − P), SSE over the readings only, and Λ the family's prior
+/// information (none for plain least squares). With a prior, give weights
+/// 1/sd² from a noise model, so that the readings' and the prior's terms are
+/// both in units of variance (σ̂ ≈ 1 then).
 ///
 /// `weights` as in [`fit_logistic`] (1/sd² for known noise; 0 drops a point).
 ///
@@ -635,6 +745,9 @@ pub fn fit_family<F: BatchFamily<P>, const P: usize>(
     if n <= P {
         return Err(FitError::TooFewPoints(n));
     }
+    let prior = family
+        .prior(&t, &y)
+        .map(|(mean, info)| (mean, info.map(|x| x.max(0.0).sqrt())));
     let mut best: Option<(f64, [f64; P])> = None;
     let mut last_failure = String::from("no start");
     for start in family.starts(&t, &y) {
@@ -643,6 +756,7 @@ pub fn fit_family<F: BatchFamily<P>, const P: usize>(
             times: &t,
             values: &y,
             sqrt_w: &sw,
+            prior,
             p: DVector::from_row_slice(&start),
         };
         let (problem, report) = LevenbergMarquardt::new()
@@ -657,16 +771,24 @@ pub fn fit_family<F: BatchFamily<P>, const P: usize>(
             last_failure = format!("inadmissible optimum {theta:?}");
             continue;
         }
-        let sse = 2.0 * report.objective_function;
-        if best.is_none_or(|(s, _)| sse < s) {
-            best = Some((sse, theta));
+        let objective = 2.0 * report.objective_function;
+        if best.is_none_or(|(s, _)| objective < s) {
+            best = Some((objective, theta));
         }
     }
-    let (sse, theta) = best.ok_or(FitError::NoConvergence(last_failure))?;
+    let (_, theta) = best.ok_or(FitError::NoConvergence(last_failure))?;
+    let mut sse = 0.0;
     let mut jtj = DMatrix::<f64>::zeros(P, P);
-    for (&ti, &s) in t.iter().zip(&sw) {
-        let g = DVector::from_row_slice(&family.value_and_gradient(&theta, ti).1) * s;
+    for ((&ti, &yi), &s) in t.iter().zip(&y).zip(&sw) {
+        let (f, g) = family.value_and_gradient(&theta, ti);
+        sse += (s * (f - yi)).powi(2);
+        let g = DVector::from_row_slice(&g) * s;
         jtj += &g * g.transpose();
+    }
+    if let Some((_, root_info)) = &prior {
+        for k in 0..P {
+            jtj[(k, k)] += root_info[k] * root_info[k];
+        }
     }
     let inv = jtj.try_inverse().ok_or(FitError::Singular)?;
     #[allow(clippy::cast_precision_loss)]

@@ -145,3 +145,63 @@ fn json_names_are_the_table_names() {
         assert_eq!(serde_json::to_value(f).unwrap(), f.name());
     }
 }
+
+#[test]
+fn the_estimators_family_fitted_in_batch_recovers_its_own_curve() {
+    use host_sim::batch::Online;
+    use plateau::{LagRichards, OnlineFamily};
+    // An INVENTED curve of the estimator's own family (slow shoulder ν 0.5,
+    // a lag near the family's prior, h0 = 0.01), read every 5 min from
+    // t = 3 h (the family's origin) with a small deterministic wiggle.
+    let (k, mu, tau, nu, h0) = (1.6_f64, 0.8_f64, 9.0, 0.5_f64, 0.01_f64);
+    let truth = LagRichards::<f64>::new(k, mu, tau, nu, h0).unwrap();
+    let c = h0.exp_m1().ln();
+    let theta_true = [k.ln(), mu.ln(), tau, nu.ln(), c];
+    let origin = 3.0;
+    let t: Vec<f64> = (0..360).map(|i| origin + f64::from(i) / 12.0).collect();
+    let y: Vec<f64> = t
+        .iter()
+        .enumerate()
+        .map(|(i, &x)| truth.value(x - origin) * (1.0 + 5e-4 * (f64::from(i as u32) * 2.1).sin()))
+        .collect();
+    let w: Vec<f64> = y.iter().map(|v| (0.003 + 0.01 * v).powi(-2)).collect();
+    let family = Online::<LagRichards<f64>>::new(origin);
+    assert_eq!(family.name(), "lag-richards");
+    // Value and gradient are the family's own, shifted to its origin.
+    let (f, g) = family.value_and_gradient(&theta_true, origin + 4.0);
+    let (f0, g0, _) = truth.eval(4.0);
+    assert!((f - f0).abs() < 1e-12 * f0, "{f} vs {f0}");
+    for i in 0..5 {
+        assert!((g[i] - g0[i]).abs() < 1e-9 * (1.0 + g0[i].abs()));
+    }
+    let fit = fit_family(&family, &t, &y, Some(&w)).unwrap();
+    // A minimiser: its objective (readings plus the family's prior) is no
+    // larger than at the truth.
+    let (mean, info) = family.prior(&t, &y).unwrap();
+    let objective = |theta: &[f64; 5]| {
+        let data: f64 = t
+            .iter()
+            .zip(&y)
+            .zip(&w)
+            .map(|((&x, &v), &wi)| wi * (family.value_and_gradient(theta, x).0 - v).powi(2))
+            .sum();
+        data + (0..5)
+            .map(|i| info[i] * (theta[i] - mean[i]).powi(2))
+            .sum::<f64>()
+    };
+    assert!(
+        objective(&fit.theta) <= objective(&theta_true) + 1e-9,
+        "{fit:?}"
+    );
+    // μmax: the largest specific rate of the true curve from its origin on.
+    let mu_true = (0..20_000)
+        .map(|i| truth.specific_rate_per_h(f64::from(i) * 1e-3))
+        .fold(f64::NEG_INFINITY, f64::max);
+    assert!((fit.capacity.value / k - 1.0).abs() < 2e-3, "{fit:?}");
+    let mu_fit = fit.max_specific_rate_per_h.value;
+    assert!(
+        (mu_fit / mu_true - 1.0).abs() < 1e-2,
+        "{mu_fit} vs {mu_true} {fit:?}"
+    );
+    assert!(fit.capacity.sd > 0.0 && fit.max_specific_rate_per_h.sd > 0.0);
+}

@@ -45,14 +45,14 @@
 
 use std::fmt::Write as _;
 
-use plateau::{Blanked, EstimatorConfig, Event, GrowthCurve, Logistic, MonitorConfig};
+use plateau::{Blanked, EstimatorConfig, Event, GrowthCurve, LagRichards, Logistic, MonitorConfig};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use serde::Serialize;
 
 use super::{mix, pct, pct2};
-use crate::batch::{BatchFamily, LogisticFamily, ValueSd, fit_family};
+use crate::batch::{BatchFamily, Online, ValueSd, fit_family};
 use crate::online;
 use crate::scenario::{self, Model, Noise, Sampling, Scenario, Sensor};
 
@@ -471,16 +471,20 @@ impl ShapeCulture {
     }
 }
 
+/// The family the default estimator fits online (the one `Watch` uses).
+pub type EstimatorFamily = LagRichards<f64>;
+
 /// The batch family the fleet fits beside the online estimator: the
-/// estimator's own family (today the logistic, as the estimator fits it).
+/// estimator's own family through its [`plateau::OnlineFamily`] seam, with
+/// its time origin at the first reading (`origin_h`) and its priors.
 #[must_use]
-pub const fn batch_family() -> LogisticFamily {
-    LogisticFamily
+pub const fn batch_family(origin_h: f64) -> Online<EstimatorFamily> {
+    Online::new(origin_h)
 }
 
-/// A batch fit of `family` to `readings`: unweighted first, then weighted by
-/// the noise model (sd = 0.003 OD + 1 %) at the unweighted fit's curve.
-/// Returns (capacity, μmax) with their sds.
+/// A batch fit of `family` to `readings`, weighted by the noise model
+/// (sd = 0.003 OD + 1 %): first at the readings themselves, then at the
+/// first fit's curve. Returns (capacity, μmax) with their sds.
 #[must_use]
 pub fn batch_fit<F: BatchFamily<P>, const P: usize>(
     family: &F,
@@ -488,7 +492,14 @@ pub fn batch_fit<F: BatchFamily<P>, const P: usize>(
 ) -> Option<(ValueSd, ValueSd)> {
     let t: Vec<f64> = readings.iter().map(|r| r.0).collect();
     let y: Vec<f64> = readings.iter().map(|r| r.1).collect();
-    let first = fit_family(family, &t, &y, None).ok()?;
+    let w0: Vec<f64> = y
+        .iter()
+        .map(|&v| {
+            let sd = NOISE_FLOOR_OD + NOISE_FRACTION * v.max(0.0);
+            1.0 / (sd * sd)
+        })
+        .collect();
+    let first = fit_family(family, &t, &y, Some(&w0)).ok()?;
     let w: Vec<f64> = t
         .iter()
         .map(|&x| {
@@ -548,7 +559,8 @@ pub fn run_culture(culture: &ShapeCulture) -> ShapeRun {
         value: f64::from(m.value),
         sd: f64::from(m.sd),
     };
-    let batch = batch_fit(&batch_family(), &readings);
+    let origin_h = readings.first().map_or(0.0, |r| r.0);
+    let batch = batch_fit(&batch_family(origin_h), &readings);
     ShapeRun {
         culture: *culture,
         truth,
@@ -760,7 +772,7 @@ pub fn run(runs_per_family: usize, seed: u64) -> ShapeReport {
     ShapeReport {
         runs_per_family,
         seed,
-        batch_family: batch_family().name(),
+        batch_family: batch_family(0.0).name(),
         families,
         pooled,
         targets_met,
@@ -848,7 +860,7 @@ pub fn render(report: &ShapeReport) -> String {
         s,
         "\nat the end of the run: relative RMS error in % (bias in brackets) and 95 % interval \
          coverage in %, online vs batch;\ncapacity is above the blank, μmax the largest \
-         d ln(OD − blank)/dt of the true curve; the online rate is today's published rate_per_h"
+         d ln(OD − blank)/dt of the true curve; the online rate is the estimator's published rate_per_h"
     );
     let _ = writeln!(
         s,
