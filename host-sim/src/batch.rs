@@ -8,8 +8,8 @@
 //! Units: times in hours, values in signal units (OD), rate per hour.
 
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
-use nalgebra::{Dyn, Matrix3, OMatrix, OVector, Owned, U3, Vector3};
-use plateau::Logistic;
+use nalgebra::{DMatrix, DVector, Dyn, Matrix3, OMatrix, OVector, Owned, U3, Vector3};
+use plateau::{Logistic, OnlineFamily};
 
 /// Why a fit could not be made.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -450,6 +450,391 @@ fn termination_words(reason: &levenberg_marquardt::TerminationReason) -> String 
         T::Orthogonal | T::Converged { .. } | T::ResidualsZero => "the fit stopped early".into(),
         _ => "the fit could not be computed for these readings".into(),
     }
+}
+
+/// A curve family the batch fitter can fit: its value and gradient in its
+/// own parameters θ, starting points, and the two figures the fleet judges
+/// (capacity and maximum specific growth rate) as functions of θ with their
+/// gradients, so [`fit_family`] can give their sds by the delta method.
+///
+/// The fleet fits the same family the online estimator uses through this
+/// trait, so no formula is written a second time here.
+///
+/// Units: times in hours, values in signal units, rates per hour; θ in the
+/// family's own units.
+pub trait BatchFamily<const P: usize> {
+    /// Short name of the family, for reports.
+    fn name(&self) -> &'static str;
+
+    /// The curve's value at `t_h` hours and its gradient in θ.
+    fn value_and_gradient(&self, theta: &[f64; P], t_h: f64) -> (f64, [f64; P]);
+
+    /// Starting points for the minimiser from the data alone (at least one).
+    fn starts(&self, times: &[f64], values: &[f64]) -> Vec<[f64; P]>;
+
+    /// Whether θ is an admissible optimum (positive capacity and rate, ...).
+    fn admissible(&self, theta: &[f64; P]) -> bool;
+
+    /// Capacity above the curve's lower asymptote, signal units, and its
+    /// gradient in θ.
+    fn capacity(&self, theta: &[f64; P]) -> (f64, [f64; P]);
+
+    /// Maximum specific growth rate, per hour, and its gradient in θ.
+    fn max_specific_rate(&self, theta: &[f64; P]) -> (f64, [f64; P]);
+
+    /// A prior on θ from the data: for each parameter its mean and its
+    /// information (1 / variance; 0 for none), added to the weighted sum of
+    /// squares as (θᵢ − meanᵢ)² · informationᵢ. `None` (the default): plain
+    /// least squares.
+    fn prior(&self, _times: &[f64], _values: &[f64]) -> Option<([f64; P], [f64; P])> {
+        None
+    }
+}
+
+/// Any [`OnlineFamily`] the estimator fits, as a [`BatchFamily`]: the
+/// family's own value, gradient, capacity, μmax and priors (so the batch fit
+/// is the online model fitted to all readings at once, and no formula is
+/// written twice). θ is the family's; times are hours since the first
+/// reading, the family's origin, as in the estimator. Starting points: the
+/// family's own start through the reading nearest half the largest one, at
+/// three rates.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Online<F> {
+    origin_h: f64,
+    family: core::marker::PhantomData<F>,
+}
+
+impl<F> Online<F> {
+    /// The family with its time origin at `origin_h` hours (the first
+    /// reading's time).
+    #[must_use]
+    pub const fn new(origin_h: f64) -> Self {
+        Self {
+            origin_h,
+            family: core::marker::PhantomData,
+        }
+    }
+}
+
+/// The family's curve at θ, after the family's own clamp.
+fn online_curve<F: OnlineFamily<f64, P>, const P: usize>(theta: &[f64; P]) -> F {
+    let mut t = *theta;
+    F::clamp(&mut t, f64::INFINITY);
+    F::from_theta(&t)
+}
+
+impl<F: OnlineFamily<f64, P>, const P: usize> BatchFamily<P> for Online<F> {
+    fn name(&self) -> &'static str {
+        F::NAME
+    }
+    fn value_and_gradient(&self, theta: &[f64; P], t_h: f64) -> (f64, [f64; P]) {
+        let (f, g, _) = online_curve::<F, P>(theta).eval(t_h - self.origin_h);
+        (f, g)
+    }
+    fn starts(&self, times: &[f64], values: &[f64]) -> Vec<[f64; P]> {
+        let y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let Some((&t_half, &y_half)) =
+            times
+                .iter()
+                .zip(values)
+                .filter(|(_, y)| **y > 0.0)
+                .min_by(|a, b| {
+                    (a.1 - y_max / 2.0)
+                        .abs()
+                        .total_cmp(&(b.1 - y_max / 2.0).abs())
+                })
+        else {
+            return Vec::new();
+        };
+        [0.3, 0.7, 1.5]
+            .iter()
+            .map(|&rate| F::start(1.05 * y_max, rate, t_half - self.origin_h, y_half))
+            .collect()
+    }
+    fn admissible(&self, theta: &[f64; P]) -> bool {
+        let mut t = *theta;
+        F::clamp(&mut t, f64::INFINITY);
+        t == *theta && theta.iter().all(|x| x.is_finite())
+    }
+    fn capacity(&self, theta: &[f64; P]) -> (f64, [f64; P]) {
+        // θ₀ = ln K (the trait's convention).
+        let k = online_curve::<F, P>(theta).capacity();
+        (k, core::array::from_fn(|i| if i == 0 { k } else { 0.0 }))
+    }
+    fn max_specific_rate(&self, theta: &[f64; P]) -> (f64, [f64; P]) {
+        let (mu, g, _) = online_curve::<F, P>(theta).max_specific_rate(theta);
+        (mu, g)
+    }
+    fn prior(&self, _times: &[f64], values: &[f64]) -> Option<([f64; P], [f64; P])> {
+        let y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        Some(F::prior(y_max))
+    }
+}
+
+/// The plain logistic as a [`BatchFamily`]: θ = (K, r, `t_m`), the same
+/// model and starts as [`fit_logistic`].
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct LogisticFamily;
+
+impl BatchFamily<3> for LogisticFamily {
+    fn name(&self) -> &'static str {
+        "logistic"
+    }
+    fn value_and_gradient(&self, theta: &[f64; 3], t_h: f64) -> (f64, [f64; 3]) {
+        value_and_gradient(theta[0], theta[1], theta[2], t_h)
+    }
+    fn starts(&self, times: &[f64], values: &[f64]) -> Vec<[f64; 3]> {
+        [1.02, 1.1, 1.4]
+            .iter()
+            .map(|&k| starts(times, values, k).into())
+            .collect()
+    }
+    fn admissible(&self, theta: &[f64; 3]) -> bool {
+        theta[0] > 0.0 && theta[1] > 0.0 && theta.iter().all(|x| x.is_finite())
+    }
+    fn capacity(&self, theta: &[f64; 3]) -> (f64, [f64; 3]) {
+        (theta[0], [1.0, 0.0, 0.0])
+    }
+    fn max_specific_rate(&self, theta: &[f64; 3]) -> (f64, [f64; 3]) {
+        (theta[1], [0.0, 1.0, 0.0])
+    }
+}
+
+/// A value with its standard deviation (delta method), in the value's units.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct ValueSd {
+    /// The value.
+    pub value: f64,
+    /// Its standard deviation.
+    pub sd: f64,
+}
+
+/// Result of [`fit_family`].
+///
+/// Units: θ in the family's units; `sse` in weighted squared signal units.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FamilyFit<const P: usize> {
+    /// Parameters at the optimum.
+    pub theta: [f64; P],
+    /// Covariance σ̂² (JᵀWJ)⁻¹ of θ.
+    pub covariance: [[f64; P]; P],
+    /// Capacity above the lower asymptote, signal units.
+    pub capacity: ValueSd,
+    /// Maximum specific growth rate, per hour.
+    pub max_specific_rate_per_h: ValueSd,
+    /// Weighted sum of squared residuals.
+    pub sse: f64,
+    /// Points used (weight > 0).
+    pub points: usize,
+}
+
+impl<const P: usize> FamilyFit<P> {
+    /// √(∇gᵀ Σ ∇g) for a function g of θ with gradient `gradient`.
+    #[must_use]
+    pub fn sd_of(&self, gradient: &[f64; P]) -> f64 {
+        let mut v = 0.0;
+        for i in 0..P {
+            for j in 0..P {
+                v += gradient[i] * self.covariance[i][j] * gradient[j];
+            }
+        }
+        v.max(0.0).sqrt()
+    }
+}
+
+struct FamilyProblem<'a, F, const P: usize> {
+    family: &'a F,
+    times: &'a [f64],
+    values: &'a [f64],
+    sqrt_w: &'a [f64],
+    /// Prior means and √information, appended as P extra residuals.
+    prior: Option<([f64; P], [f64; P])>,
+    p: DVector<f64>,
+}
+
+impl<F, const P: usize> FamilyProblem<'_, F, P> {
+    fn theta(&self) -> [f64; P] {
+        core::array::from_fn(|i| self.p[i])
+    }
+}
+
+impl<F: BatchFamily<P>, const P: usize> LeastSquaresProblem<f64, Dyn, Dyn>
+    for FamilyProblem<'_, F, P>
+{
+    type ResidualStorage = Owned<f64, Dyn>;
+    type JacobianStorage = Owned<f64, Dyn, Dyn>;
+    type ParameterStorage = Owned<f64, Dyn>;
+
+    fn set_params(&mut self, x: &DVector<f64>) {
+        self.p.copy_from(x);
+    }
+
+    fn params(&self) -> DVector<f64> {
+        self.p.clone()
+    }
+
+    fn residuals(&self) -> Option<DVector<f64>> {
+        let theta = self.theta();
+        let n = self.times.len();
+        let extra = if self.prior.is_some() { P } else { 0 };
+        let mut res = DVector::<f64>::zeros(n + extra);
+        for (i, ((&t, &y), &s)) in self
+            .times
+            .iter()
+            .zip(self.values)
+            .zip(self.sqrt_w)
+            .enumerate()
+        {
+            res[i] = s * (self.family.value_and_gradient(&theta, t).0 - y);
+        }
+        if let Some((mean, root_info)) = &self.prior {
+            for k in 0..P {
+                res[n + k] = root_info[k] * (theta[k] - mean[k]);
+            }
+        }
+        res.iter().all(|x| x.is_finite()).then_some(res)
+    }
+
+    fn jacobian(&self) -> Option<DMatrix<f64>> {
+        let theta = self.theta();
+        let n = self.times.len();
+        let extra = if self.prior.is_some() { P } else { 0 };
+        let mut j = DMatrix::<f64>::zeros(n + extra, P);
+        for (i, (&t, &s)) in self.times.iter().zip(self.sqrt_w).enumerate() {
+            let g = self.family.value_and_gradient(&theta, t).1;
+            for c in 0..P {
+                j[(i, c)] = s * g[c];
+            }
+        }
+        if let Some((_, root_info)) = &self.prior {
+            for k in 0..P {
+                j[(n + k, k)] = root_info[k];
+            }
+        }
+        j.iter().all(|x| x.is_finite()).then_some(j)
+    }
+}
+
+/// Fits any [`BatchFamily`] by (weighted) least squares with
+/// Levenberg–Marquardt from each of the family's starting points, keeping
+/// the lowest objective; covariance σ̂² (JᵀWJ + Λ)⁻¹ with
+/// σ̂² = SSE / (n − P), SSE over the readings only, and Λ the family's prior
+/// information (none for plain least squares). With a prior, give weights
+/// 1/sd² from a noise model, so that the readings' and the prior's terms are
+/// both in units of variance (σ̂ ≈ 1 then).
+///
+/// `weights` as in [`fit_logistic`] (1/sd² for known noise; 0 drops a point).
+///
+/// Units: `times` in hours, `values` in signal units.
+///
+/// # Errors
+///
+/// See [`FitError`]; at least P + 1 usable points are needed.
+pub fn fit_family<F: BatchFamily<P>, const P: usize>(
+    family: &F,
+    times: &[f64],
+    values: &[f64],
+    weights: Option<&[f64]>,
+) -> Result<FamilyFit<P>, FitError> {
+    if times.len() != values.len() || weights.is_some_and(|w| w.len() != times.len()) {
+        return Err(FitError::LengthMismatch);
+    }
+    let mut t = Vec::with_capacity(times.len());
+    let mut y = Vec::with_capacity(times.len());
+    let mut sw = Vec::with_capacity(times.len());
+    for i in 0..times.len() {
+        let w = weights.map_or(1.0, |w| w[i]);
+        if !(w.is_finite() && w >= 0.0) {
+            return Err(FitError::BadWeight(i));
+        }
+        if !(times[i].is_finite() && values[i].is_finite()) {
+            return Err(FitError::NotFinite(i));
+        }
+        if w > 0.0 {
+            t.push(times[i]);
+            y.push(values[i]);
+            sw.push(w.sqrt());
+        }
+    }
+    let n = t.len();
+    if n <= P {
+        return Err(FitError::TooFewPoints(n));
+    }
+    let prior = family
+        .prior(&t, &y)
+        .map(|(mean, info)| (mean, info.map(|x| x.max(0.0).sqrt())));
+    let mut best: Option<(f64, [f64; P])> = None;
+    let mut last_failure = String::from("no start");
+    for start in family.starts(&t, &y) {
+        let problem = FamilyProblem {
+            family,
+            times: &t,
+            values: &y,
+            sqrt_w: &sw,
+            prior,
+            p: DVector::from_row_slice(&start),
+        };
+        let (problem, report) = LevenbergMarquardt::new()
+            .with_patience(300)
+            .minimize(problem);
+        let theta = problem.theta();
+        if !report.termination.was_successful() {
+            last_failure = format!("{:?}", report.termination);
+            continue;
+        }
+        if !family.admissible(&theta) {
+            last_failure = format!("inadmissible optimum {theta:?}");
+            continue;
+        }
+        let objective = 2.0 * report.objective_function;
+        if best.is_none_or(|(s, _)| objective < s) {
+            best = Some((objective, theta));
+        }
+    }
+    let (_, theta) = best.ok_or(FitError::NoConvergence(last_failure))?;
+    let mut sse = 0.0;
+    let mut jtj = DMatrix::<f64>::zeros(P, P);
+    for ((&ti, &yi), &s) in t.iter().zip(&y).zip(&sw) {
+        let (f, g) = family.value_and_gradient(&theta, ti);
+        sse += (s * (f - yi)).powi(2);
+        let g = DVector::from_row_slice(&g) * s;
+        jtj += &g * g.transpose();
+    }
+    if let Some((_, root_info)) = &prior {
+        for k in 0..P {
+            jtj[(k, k)] += root_info[k] * root_info[k];
+        }
+    }
+    let inv = jtj.try_inverse().ok_or(FitError::Singular)?;
+    #[allow(clippy::cast_precision_loss)]
+    let sigma2 = sse / (n - P) as f64;
+    let covariance: [[f64; P]; P] =
+        core::array::from_fn(|i| core::array::from_fn(|j| sigma2 * inv[(i, j)]));
+    let mut fit = FamilyFit {
+        theta,
+        covariance,
+        capacity: ValueSd {
+            value: 0.0,
+            sd: 0.0,
+        },
+        max_specific_rate_per_h: ValueSd {
+            value: 0.0,
+            sd: 0.0,
+        },
+        sse,
+        points: n,
+    };
+    let (k, gk) = family.capacity(&theta);
+    let (mu, gmu) = family.max_specific_rate(&theta);
+    fit.capacity = ValueSd {
+        value: k,
+        sd: fit.sd_of(&gk),
+    };
+    fit.max_specific_rate_per_h = ValueSd {
+        value: mu,
+        sd: fit.sd_of(&gmu),
+    };
+    Ok(fit)
 }
 
 #[cfg(test)]

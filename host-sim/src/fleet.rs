@@ -37,6 +37,8 @@ use rand_distr::{Distribution, Exp, StandardNormal};
 use rayon::prelude::*;
 use serde::Serialize;
 
+pub mod shapes;
+
 use crate::batch::{LogisticFit, fisher_heteroscedastic, fit_logistic, fit_logistic_trimmed};
 use crate::online;
 

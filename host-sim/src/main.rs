@@ -154,6 +154,11 @@ enum Command {
         /// Print machine-readable JSON instead of tables.
         #[arg(long)]
         json: bool,
+        /// INVENTED cultures per shape family (Richards slow and sharp
+        /// shoulder, Gompertz and Baranyi with lag, logistic on an unknown
+        /// blank); 0 leaves the shape streams out.
+        #[arg(long, default_value_t = 15)]
+        shape_runs: usize,
     },
 }
 
@@ -326,22 +331,34 @@ fn run() -> Result<()> {
                 write!(stdout, "{}", replay::describe(&result))?;
             }
         }
-        Command::Fleet { runs, seed, json } => {
+        Command::Fleet {
+            runs,
+            seed,
+            json,
+            shape_runs,
+        } => {
             let options = fleet::FleetOptions {
                 progress: !json && std::io::stderr().is_terminal(),
                 ..fleet::FleetOptions::new(runs, seed)
             };
             let report = fleet::run(&options)?;
             let monitor = host_sim::alerts::run(runs, seed, 1.0);
+            let shapes = (shape_runs > 0).then(|| fleet::shapes::run(shape_runs, seed));
             if json {
                 let mut value = fleet::to_json(&report);
                 if let Some(object) = value.as_object_mut() {
                     object.insert("monitor".into(), serde_json::to_value(&monitor)?);
+                    if let Some(shapes) = &shapes {
+                        object.insert("shape_streams".into(), fleet::shapes::to_json(shapes));
+                    }
                 }
                 writeln!(stdout, "{}", serde_json::to_string_pretty(&value)?)?;
             } else {
                 write!(stdout, "{}", fleet::render(&report))?;
                 write!(stdout, "{}", host_sim::alerts::render(&monitor))?;
+                if let Some(shapes) = &shapes {
+                    write!(stdout, "{}", fleet::shapes::render(shapes))?;
+                }
             }
         }
         Command::Simulate {
