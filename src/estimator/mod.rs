@@ -753,7 +753,7 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
         // The shadow fit gives a spread, which moves slowly: every
         // SHADOW_EVERY accepted readings is enough, and keeps its cost to a
         // fraction of a refit.
-        if !self.shadow_ready || self.accepted % SHADOW_EVERY == 0 {
+        if !self.shadow_ready || self.accepted.is_multiple_of(SHADOW_EVERY) {
             self.shadow_fit(iterations);
         }
         self.curve = F::from_theta(&self.theta);

@@ -16,7 +16,9 @@
 use crate::Real;
 
 /// A growth-curve family with `P` parameters that the estimator can fit
-/// online. See the [module docs](self) for the conventions on θ.
+/// online. Conventions every family keeps: θ₀ = ln K (capacity above
+/// blank, signal units), θ₁ = ln of the family's rate (per hour), θ₂ a
+/// midpoint time (hours since the estimator's origin, its first reading).
 ///
 /// The value implementing the trait is the curve at one θ, with whatever the
 /// family precomputes from θ (exponentials) so that a pass over the history
