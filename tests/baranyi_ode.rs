@@ -3,7 +3,7 @@
 //!
 //! Source: J. Baranyi and T. A. Roberts, "A dynamic approach to predicting
 //! bacterial growth in food", Int. J. Food Microbiol. 23:277–294 (1994), as
-//! quoted in FACTS.md: dx/dt = μmax · q/(1+q) · (1 − x/xmax) · x,
+//! quoted in REFERENCES.md: dx/dt = μmax · q/(1+q) · (1 − x/xmax) · x,
 //! dq/dt = μmax q, with h0 = μmax λ = ln(1 + 1/q0). The reference integrator is
 //! the classical fourth-order Runge–Kutta method (common practice), written
 //! here in f64 and run on x and q exactly as published (not on logarithms).
@@ -125,7 +125,7 @@ fn slope_matches_the_published_right_hand_side() {
 
 #[test]
 fn lag_and_q0_parameterisations_agree() {
-    // h0 = μmax λ = ln(1 + 1/q0) (Baranyi & Roberts 1994, FACTS.md).
+    // h0 = μmax λ = ln(1 + 1/q0) (Baranyi & Roberts 1994, REFERENCES.md).
     for &(q0, mu, amax) in &CASES {
         let h0 = (1.0 + 1.0 / q0).ln();
         let by_q0 = Baranyi::from_q0(amax, mu, q0).unwrap();
@@ -146,7 +146,7 @@ fn lag_and_q0_parameterisations_agree() {
 fn without_lag_the_model_is_the_logistic_in_x() {
     // h0 = 0 (q0 → ∞) makes q/(1+q) = 1, so x follows the plain logistic
     // dx/dt = μmax (1 − x/xmax) x (Baranyi & Roberts 1994 with q0 → ∞); its
-    // solution is x = xmax / (1 + (xmax/x0 − 1) e^(−μmax t)) (FACTS.md, logistic).
+    // solution is x = xmax / (1 + (xmax/x0 − 1) e^(−μmax t)) (REFERENCES.md, logistic).
     for &(_, mu, amax) in &CASES {
         let curve = Baranyi::from_h0(amax, mu, 0.0).unwrap();
         let x_max = amax.exp();
@@ -160,7 +160,7 @@ fn without_lag_the_model_is_the_logistic_in_x() {
 
 #[test]
 fn exponential_phase_is_the_line_mu_t_minus_h0() {
-    // From the explicit solution (FACTS.md): for μmax t ≫ h0 and before the
+    // From the explicit solution (REFERENCES.md): for μmax t ≫ h0 and before the
     // plateau, μmax A(t) → μmax t − h0, so y → μmax t − h0. Large ymax − y0
     // keeps the plateau term negligible; the remaining error is e^(h0 − μmax t).
     for &(q0, mu, _) in &CASES {

@@ -96,7 +96,7 @@ fn reaches_the_cramer_rao_bound_on_clean_cultures() {
     let known_blank = EstimatorConfig::new().blank(0.0).unwrap();
     let t = tally(&stream, &truth, known_blank, Fit::Logistic);
     // Reference: the Cramér–Rao bound for this sampling grid and noise model
-    // (Fisher information JᵀWJ, formulas in FACTS.md). No unbiased estimator
+    // (Fisher information JᵀWJ, formulas in REFERENCES.md). No unbiased estimator
     // does better; a full batch fit with the right weights attains it.
     let crb = cramer_rao_sd(&truth, &times(&stream.generate(&truth, 0)), 0.003, 0.01);
     let (rk, rr) = (rmse(t.sq_k, t.runs) / crb[0], rmse(t.sq_r, t.runs) / crb[1]);
@@ -226,7 +226,7 @@ fn inflection_and_forecast_match_the_closed_form() {
         (f64::from(doubling.value) - core::f64::consts::LN_2 / mu).abs()
             < 3.0 * f64::from(doubling.sd)
     );
-    // Time to 90 % of capacity: t_m + ln 9 / r (FACTS.md).
+    // Time to 90 % of capacity: t_m + ln 9 / r (REFERENCES.md).
     let t90 = est.time_to_fraction(0.9).unwrap();
     assert!(
         (f64::from(t90.value) - (8.0 + 9.0_f64.ln() / 0.7)).abs()
@@ -241,7 +241,7 @@ fn inflection_and_forecast_match_the_closed_form() {
 }
 
 /// Lag by the tangent construction on ln y against the Baranyi–Roberts model,
-/// whose λ is defined that way (Baranyi & Roberts 1994, h0 = μmax λ; FACTS.md),
+/// whose λ is defined that way (Baranyi & Roberts 1994, h0 = μmax λ; REFERENCES.md),
 /// and against a logistic with no lag at all.
 #[test]
 fn lag_matches_the_baranyi_lambda_and_is_zero_without_one() {
@@ -461,7 +461,7 @@ fn a_dilution_restarts_and_the_estimator_reconverges() {
     let k = e.capacity.expect("capacity after regrowth");
     assert!((f64::from(k.value) - 1.5).abs() < 0.02, "{k:?}");
     // μmax of the regrowth from its restart level: r (1 − y/K) there
-    // (the logistic's per-capita rate, FACTS.md).
+    // (the logistic's per-capita rate, REFERENCES.md).
     let restart_level = second[restart - 3].truth;
     let mu = 0.7 * (1.0 - restart_level / 1.5);
     let r = e.rate_per_h;
@@ -542,7 +542,7 @@ fn other_history_sizes_track_the_culture_too() {
 }
 
 /// A culture that is not a logistic: Zwietering's Gompertz form on ln(N/N0)
-/// (Zwietering et al. 1990; FACTS.md) mapped to OD. The logistic fit cannot
+/// (Zwietering et al. 1990; REFERENCES.md) mapped to OD. The logistic fit cannot
 /// match its asymmetry; the published interval must say so.
 #[test]
 fn intervals_widen_when_the_culture_is_not_a_logistic() {
@@ -575,7 +575,7 @@ fn intervals_widen_when_the_culture_is_not_a_logistic() {
 }
 
 /// A noiseless logistic stream: the f32 estimate converges to the closed
-/// form's capacity and rate within 1e-3 relative (closed form: FACTS.md),
+/// form's capacity and rate within 1e-3 relative (closed form: REFERENCES.md),
 /// for the plain logistic; the default shape-aware family within 1e-3 for
 /// the capacity and 1 % for μmax (its no-lag prior, h₀ ≈ 0.005, leaves the
 /// fitted curve a lag of minutes that the readings of a culture under the
@@ -602,7 +602,7 @@ fn noiseless_stream_converges_to_the_closed_form() {
     let e = shape.estimate().unwrap();
     let k = f64::from(e.capacity.unwrap().value);
     assert!((k / 1.5 - 1.0).abs() < 1e-3, "capacity {k}");
-    // μmax from the first reading: r (1 − y(0)/K) (FACTS.md).
+    // μmax from the first reading: r (1 − y(0)/K) (REFERENCES.md).
     let mu = logistic_mu_max(&truth, 0.0);
     let r = f64::from(e.rate_per_h.value);
     assert!((r / mu - 1.0).abs() < 1e-2, "rate {r} against {mu}");

@@ -3,7 +3,7 @@
 //! analytic partial derivatives against central finite differences.
 //!
 //! Sources: the logistic reciprocal recursion u(t+Δ) = a u(t) + (1 − a)/K,
-//! a = e^(−rΔ) (FACTS.md); Zwietering et al. 1990 (Appl. Environ. Microbiol.
+//! a = e^(−rΔ) (REFERENCES.md); Zwietering et al. 1990 (Appl. Environ. Microbiol.
 //! 56:1875–1881) for the Gompertz and Richards forms the steps must follow;
 //! Baranyi & Roberts 1994 (Int. J. Food Microbiol. 23:277–294) for the Baranyi
 //! system. An exact solution of an autonomous equation composes (the flow
@@ -77,7 +77,7 @@ fn baranyi_many_small_steps_equal_one_big_step() {
 
 #[test]
 fn steps_follow_the_closed_forms() {
-    // Logistic (FACTS.md), Zwietering's Gompertz and Richards (their ln-scale
+    // Logistic (REFERENCES.md), Zwietering's Gompertz and Richards (their ln-scale
     // curves obey dy/dt = b y ln(A/y), b = μm e / A, and
     // dy/dt = (c/ν) y (1 − (y/A)^ν), c = μm (1+ν)^(1+1/ν)/A — differentiate the
     // written-out forms), and Baranyi (x = e^y, q = q0 e^(μ t)).
@@ -110,7 +110,7 @@ fn steps_follow_the_closed_forms() {
 #[test]
 fn steps_solve_their_differential_equations() {
     // d y'/dΔ must equal the right-hand side of the law at y' (the table in
-    // step.rs; logistic and reciprocal form from FACTS.md; Gompertz and
+    // step.rs; logistic and reciprocal form from REFERENCES.md; Gompertz and
     // Richards laws as derived from Zwietering's forms above).
     for &(y, k, r) in &STATES {
         let dt = 1.3;

@@ -115,7 +115,7 @@ proptest! {
         midpoint in -50.0..50.0_f64,
         s in -15.0..15.0_f64,
     ) {
-        // FACTS.md logistic; t in ±15/r around the midpoint (y/K from 3e-7 to 1 − 3e-7).
+        // REFERENCES.md logistic; t in ±15/r around the midpoint (y/K from 3e-7 to 1 − 3e-7).
         let c = Logistic::from_midpoint(k, r, midpoint).unwrap();
         let t = midpoint + s / r;
         check_round_trip(&c, t, midpoint.abs() + (1.0 + s.abs()) / r, 0.0)?;

@@ -1,7 +1,7 @@
 //! The plain logistic y = K / (1 + B e^(−r t)) against its textbook identities.
 //!
 //! Source for every identity here unless a check says otherwise: the logistic
-//! entry of `/work/shared/FACTS.md` (inflection at K/2 at t* = ln(B)/r, maximum
+//! entry of `/work/shared/REFERENCES.md` (inflection at K/2 at t* = ln(B)/r, maximum
 //! slope rK/4, symmetry about (t*, K/2), time to a fraction p of K
 //! t* + ln(p/(1−p))/r, 10 % → 90 % in ln 81 / r, early phase (K/B) e^(r t) with
 //! relative error about y/K, per-capita rate r(1 − y/K), and the exact
@@ -14,13 +14,13 @@ use common::{argmax, assert_close, derivative};
 use plateau::{Error, GrowthCurve, Logistic};
 
 /// Invented cultures (capacity in OD or counts, rate per hour, y0 at t = 0),
-/// plus the Carlson (1913) least-squares fit quoted in FACTS.md.
+/// plus the Carlson (1913) least-squares fit quoted in REFERENCES.md.
 const CASES: [(f64, f64, f64); 5] = [
     (1.5, 0.7, 0.01),
     (2.0, 0.8, 0.02),
     (0.35, 2.4, 0.001),
     (40.0, 0.05, 30.0),
-    // Carlson yeast fit: K = 663.02, r = 0.54699, B = 71.58 (FACTS.md).
+    // Carlson yeast fit: K = 663.02, r = 0.54699, B = 71.58 (REFERENCES.md).
     (663.02, 0.54699, 663.02 / (1.0 + 71.58)),
 ];
 
@@ -38,7 +38,7 @@ fn reference(k: f64, r: f64, b: f64, t: f64) -> f64 {
 
 #[test]
 fn values_match_the_published_form() {
-    // FACTS.md: y = K / (1 + B e^(−r t)).
+    // REFERENCES.md: y = K / (1 + B e^(−r t)).
     for (k, r, b, c) in curves() {
         for i in -40..=80 {
             let t = f64::from(i) * 0.5 / r;
@@ -49,7 +49,7 @@ fn values_match_the_published_form() {
 
 #[test]
 fn inflection_is_half_capacity_at_ln_b_over_r() {
-    // FACTS.md: inflection at y = K/2, t* = ln(B)/r.
+    // REFERENCES.md: inflection at y = K/2, t* = ln(B)/r.
     for (k, r, b, c) in curves() {
         let t_star = b.ln() / r;
         let i = c.inflection();
@@ -70,7 +70,7 @@ fn inflection_is_half_capacity_at_ln_b_over_r() {
 
 #[test]
 fn carlson_fit_midpoint_matches_ln_b_over_r() {
-    // FACTS.md quotes K = 663.02, r = 0.54699, B = 71.58 and, separately, the
+    // REFERENCES.md quotes K = 663.02, r = 0.54699, B = 71.58 and, separately, the
     // midpoint 7.808 h. t* = ln(B)/r must reproduce it to the published digits.
     let c = Logistic::from_b(663.02, 0.54699, 71.58).unwrap();
     assert_close(c.midpoint_h(), 7.808, 0.0, 6e-4, "Carlson midpoint");
@@ -79,7 +79,7 @@ fn carlson_fit_midpoint_matches_ln_b_over_r() {
 #[test]
 fn carlson_fit_reproduces_the_published_residual_sum_of_squares() {
     // Carlson (1913) yeast data and the unweighted least-squares fit with
-    // SSE 194.33 (FACTS.md). The quoted parameters are rounded, so the SSE at
+    // SSE 194.33 (REFERENCES.md). The quoted parameters are rounded, so the SSE at
     // them may exceed the minimum by a hair, never fall below it by more than
     // the rounding of "194.33".
     let data = [
@@ -93,14 +93,14 @@ fn carlson_fit_reproduces_the_published_residual_sum_of_squares() {
         .map(|(&y, hour)| (y - c.value(f64::from(hour))).powi(2))
         .sum();
     assert!((194.325..194.6).contains(&sse), "SSE {sse}");
-    // Residual sd sqrt(SSE / 16) = 3.485 (FACTS.md).
+    // Residual sd sqrt(SSE / 16) = 3.485 (REFERENCES.md).
     assert_close((sse / 16.0).sqrt(), 3.485, 0.0, 2e-3, "residual sd");
 }
 
 #[test]
 fn pearl_logistic_for_carlson_data_is_a_from_b_curve() {
     // Pearl's logistic for the Carlson data, y = 665 / (1 + e^(4.1896 − 0.5355 t))
-    // (FACTS.md, [memory]): B = e^4.1896, r = 0.5355, and its midpoint
+    // (REFERENCES.md, [memory]): B = e^4.1896, r = 0.5355, and its midpoint
     // 4.1896 / 0.5355 h. Written out by hand against the crate's form.
     let c = Logistic::from_b(665.0, 0.5355, 4.1896_f64.exp()).unwrap();
     assert_close(
@@ -119,7 +119,7 @@ fn pearl_logistic_for_carlson_data_is_a_from_b_curve() {
 
 #[test]
 fn maximum_slope_is_r_k_over_four() {
-    // FACTS.md: maximum slope rK/4. Checked numerically (central differences
+    // REFERENCES.md: maximum slope rK/4. Checked numerically (central differences
     // of the reference) as well as through the crate's `slope`.
     for (k, r, b, c) in curves() {
         let expected = r * k / 4.0;
@@ -147,7 +147,7 @@ fn maximum_slope_is_r_k_over_four() {
 
 #[test]
 fn curve_is_point_symmetric_about_the_inflection() {
-    // FACTS.md: symmetric about (t*, K/2): y(t* + s) + y(t* − s) = K.
+    // REFERENCES.md: symmetric about (t*, K/2): y(t* + s) + y(t* − s) = K.
     for (k, r, b, c) in curves() {
         let t_star = b.ln() / r;
         for i in 1..=50 {
@@ -172,7 +172,7 @@ fn curve_is_point_symmetric_about_the_inflection() {
 
 #[test]
 fn time_to_a_fraction_and_the_10_to_90_rise() {
-    // FACTS.md: time to p·K is t* + ln(p/(1−p))/r; 10 % → 90 % takes ln 81 / r.
+    // REFERENCES.md: time to p·K is t* + ln(p/(1−p))/r; 10 % → 90 % takes ln 81 / r.
     for (k, r, b, c) in curves() {
         let t_star = b.ln() / r;
         for &p in &[1e-6_f64, 0.01, 0.1, 0.25, 0.5, 0.75, 0.9, 0.99, 0.999_999] {
@@ -201,7 +201,7 @@ fn time_to_a_fraction_and_the_10_to_90_rise() {
 
 #[test]
 fn early_phase_is_exponential_with_relative_error_about_y_over_k() {
-    // FACTS.md: early phase y ≈ (K/B) e^(r t), relative error about y/K.
+    // REFERENCES.md: early phase y ≈ (K/B) e^(r t), relative error about y/K.
     for (k, r, b, c) in curves() {
         for &frac in &[1e-6_f64, 1e-4, 1e-3, 1e-2, 0.05, 0.1] {
             // The time at which the reference reaches frac·K.
@@ -235,7 +235,7 @@ fn early_phase_is_exponential_with_relative_error_about_y_over_k() {
 
 #[test]
 fn per_capita_rate_and_doubling_time() {
-    // FACTS.md: per-capita rate r(1 − y/K); doubling time ln 2 / r for the
+    // REFERENCES.md: per-capita rate r(1 − y/K); doubling time ln 2 / r for the
     // early exponential phase (common practice).
     for (k, r, b, c) in curves() {
         for i in -20..=20 {
@@ -262,7 +262,7 @@ fn per_capita_rate_and_doubling_time() {
 
 #[test]
 fn reciprocal_obeys_the_exact_linear_recursion() {
-    // FACTS.md: u = 1/y gives u(t+Δ) = a u(t) + (1 − a)/K, a = e^(−rΔ), exactly.
+    // REFERENCES.md: u = 1/y gives u(t+Δ) = a u(t) + (1 − a)/K, a = e^(−rΔ), exactly.
     for (k, r, _, c) in curves() {
         for &dt in &[0.01, 0.5, 3.0, 20.0] {
             let a = (-r * dt).exp();
@@ -286,7 +286,7 @@ fn tangent_lag_is_where_the_tangent_at_t_star_meets_zero() {
 
 #[test]
 fn parameterisations_convert_losslessly() {
-    // FACTS.md: B = (K − y0)/y0 and t* = ln(B)/r; round trips through the
+    // REFERENCES.md: B = (K − y0)/y0 and t* = ln(B)/r; round trips through the
     // three constructors must agree to rounding.
     for &(k, r, y0) in &CASES {
         let b = (k - y0) / y0;

@@ -63,7 +63,7 @@ fn phases_and_events_come_out_in_order_without_flicker() {
         ],
         "{changes:?}"
     );
-    // Phase fractions of the logistic (FACTS.md: time to a fraction p of K is
+    // Phase fractions of the logistic (REFERENCES.md: time to a fraction p of K is
     // t_m + ln(p/(1−p))/r): 30 % at 12 + ln(3/7)/0.7 = 10.79 h, 95 % at
     // 12 + ln 19/0.7 = 16.21 h. Confirmation takes 3 readings (15 min).
     let at = |p: Phase| changes.iter().find(|c| c.2 == p).unwrap().0;
@@ -197,7 +197,7 @@ fn saturation_alert_fires_before_the_crossing_and_not_too_early() {
                 }
             }
         }
-        // True crossing of 90 %: t_m + ln 9 / r (FACTS.md).
+        // True crossing of 90 %: t_m + ln 9 / r (REFERENCES.md).
         let crossing = truth.midpoint_h() + 9.0_f64.ln() / truth.rate_per_h();
         match alert {
             None => missing += 1,
@@ -292,7 +292,7 @@ fn user_targets_fire_due_then_reached() {
             .find(|e| pred(&e.event))
             .map(|e| f64::from(e.time_h))
     };
-    // Closed form (FACTS.md): 0.6 OD = 40 % of 1.5 at 8 + ln(0.4/0.6)/0.7 = 7.42 h;
+    // Closed form (REFERENCES.md): 0.6 OD = 40 % of 1.5 at 8 + ln(0.4/0.6)/0.7 = 7.42 h;
     // 80 % at 8 + ln 4/0.7 = 9.98 h.
     let due = when(&|e| {
         *e == Event::TargetDue {

@@ -3,7 +3,7 @@
 //! K. van 't Riet, "Modeling of the bacterial growth curve", Appl. Environ.
 //! Microbiol. 56:1875–1881 (1990): on y = ln(N/N0) each form tends to A, its
 //! maximum slope is μm, and the tangent at its inflection crosses y = 0 at
-//! t = λ. The written-out forms below are the ones in FACTS.md, marked there
+//! t = λ. The written-out forms below are the ones in REFERENCES.md, marked there
 //! as recalled from memory; the properties are the paper's definitions, so
 //! they are checked numerically (central differences, golden-section search)
 //! on the crate's `value` alone, not through its own `slope` or `inflection`.
@@ -26,7 +26,7 @@ const PARAMS: [(f64, f64, f64); 4] = [
 /// Richards shapes ν: Gompertz-like, in between, logistic, and sharper.
 const SHAPES: [f64; 5] = [0.05, 0.5, 1.0, 2.0, 5.0];
 
-// FACTS.md forms, written out with std's f64 functions as independent references.
+// REFERENCES.md forms, written out with std's f64 functions as independent references.
 fn ref_logistic(a: f64, mu: f64, lag: f64, t: f64) -> f64 {
     a / (1.0 + (4.0 * mu * (lag - t) / a + 2.0).exp())
 }
@@ -107,7 +107,7 @@ fn numeric_inflection(c: &Case) -> (f64, f64, f64) {
 
 #[test]
 fn values_match_the_written_out_forms() {
-    // FACTS.md forms (Zwietering et al. 1990 [forms from memory]).
+    // REFERENCES.md forms (Zwietering et al. 1990 [forms from memory]).
     for c in cases() {
         for t in grid(&c) {
             let expected = (c.reference)(t);
@@ -169,7 +169,7 @@ fn tangent_at_the_inflection_crosses_zero_at_lambda() {
 
 #[test]
 fn inflection_points_of_logistic_and_gompertz() {
-    // FACTS.md (Zwietering et al. 1990): logistic inflection y = A/2 at
+    // REFERENCES.md (Zwietering et al. 1990): logistic inflection y = A/2 at
     // λ + A/(2 μm); Gompertz y = A/e at λ + A/(e μm).
     for &(a, mu, lag) in &PARAMS {
         let checks: [(Curve, f64, f64, &str); 2] = [
@@ -206,7 +206,7 @@ fn inflection_points_of_logistic_and_gompertz() {
 
 #[test]
 fn richards_inflection_agrees_with_the_numerical_one() {
-    // Not in FACTS.md: setting d²y/dt² = 0 in the Richards form above gives
+    // Not in REFERENCES.md: setting d²y/dt² = 0 in the Richards form above gives
     // y = A (1 + ν)^(−1/ν) at λ + (1 + ν)/c, c = μm (1+ν)^(1+1/ν)/A (derived
     // here from the written-out form). Checked against a numerical search.
     for c in cases()
@@ -246,7 +246,7 @@ fn richards_inflection_agrees_with_the_numerical_one() {
 fn richards_reduces_to_logistic_at_nu_one_and_gompertz_as_nu_vanishes() {
     // Substituting ν = 1 in the Richards form gives the logistic form exactly;
     // as ν → 0, (1 + ν W)^(−1/ν) → e^(−W) and (1+ν)^(1+1/ν) → e, the Gompertz
-    // form (algebra on the FACTS.md forms; the difference is O(ν)).
+    // form (algebra on the REFERENCES.md forms; the difference is O(ν)).
     for &(a, mu, lag) in &PARAMS {
         let r1 = Richards::new(a, mu, lag, 1.0).unwrap();
         let l = ZwieteringLogistic::new(a, mu, lag).unwrap();
@@ -262,7 +262,7 @@ fn richards_reduces_to_logistic_at_nu_one_and_gompertz_as_nu_vanishes() {
 
 #[test]
 fn zwietering_logistic_maps_to_the_plain_logistic() {
-    // FACTS.md: r = 4 μm / A, midpoint λ + A/(2 μm).
+    // REFERENCES.md: r = 4 μm / A, midpoint λ + A/(2 μm).
     for &(a, mu, lag) in &PARAMS {
         let z = ZwieteringLogistic::new(a, mu, lag).unwrap();
         let p = Logistic::from_midpoint(a, 4.0 * mu / a, lag + a / (2.0 * mu)).unwrap();

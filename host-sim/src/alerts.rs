@@ -5,7 +5,7 @@
 //! 0.3–1.5 per hour and midpoint 5–12 h, read every 5 minutes (±1 minute
 //! jitter) with noise 0.003 OD + 1 % and 2 % bubbles of about +0.2 OD. The
 //! truth is the closed form, so the true 90 % crossing is
-//! t_m + ln 9 / r and the true inflection t_m (FACTS.md logistic identities).
+//! t_m + ln 9 / r and the true inflection t_m (REFERENCES.md logistic identities).
 
 use plateau::{EstimatorConfig, Event, GrowthCurve, Logistic, MonitorConfig, Phase, Watch};
 use rand::{RngExt, SeedableRng};
@@ -312,7 +312,7 @@ mod tests {
         let b = Culture::draw(3, 5);
         assert_eq!(a.readings(10.0, true), b.readings(10.0, true));
         assert!((0.8..3.0).contains(&a.capacity_od));
-        // The logistic identity (FACTS.md): the time to a fraction p of K is
+        // The logistic identity (REFERENCES.md): the time to a fraction p of K is
         // t_m + ln(p/(1−p))/r, and the value there is p·K.
         let t = a.time_to_fraction(0.9);
         assert!((t - (a.midpoint_h + 9.0_f64.ln() / a.rate_per_h)).abs() < 1e-9);

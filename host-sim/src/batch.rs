@@ -118,7 +118,7 @@ impl LogisticFit {
 fn value_and_gradient(k: f64, r: f64, tm: f64, t: f64) -> (f64, [f64; 3]) {
     let e = (-r * (t - tm)).exp();
     let d = 1.0 + e;
-    // FACTS.md (Fisher information of the logistic): ∂f/∂K = 1/(1+e),
+    // REFERENCES.md (Fisher information of the logistic): ∂f/∂K = 1/(1+e),
     // ∂f/∂r = K (t − t_m) e / (1+e)², ∂f/∂t_m = −K r e / (1+e)².
     (
         k / d,
@@ -862,7 +862,7 @@ mod tests {
 
     /// Carlson (1913) yeast culture, amount of yeast at t = 0..18 h
     /// (T. Carlson, Biochem. Z. 57:313–334, 1913; tabulated in R. Pearl,
-    /// Q. Rev. Biol. 2:532–548, 1927), as given in FACTS.md.
+    /// Q. Rev. Biol. 2:532–548, 1927), as given in REFERENCES.md.
     const CARLSON: [f64; 19] = [
         9.6, 18.3, 29.0, 47.2, 71.1, 119.1, 174.6, 257.3, 350.7, 441.0, 513.3, 559.7, 594.8, 629.4,
         640.8, 651.1, 655.9, 659.6, 661.8,
@@ -880,7 +880,7 @@ mod tests {
     fn carlson_yeast_least_squares() {
         let fit = fit_logistic(&hours(), &CARLSON, None).unwrap();
         // Reference: unweighted least squares of the Carlson data with a
-        // general-purpose fitter, FACTS.md: K = 663.02 ± 1.70,
+        // general-purpose fitter, REFERENCES.md: K = 663.02 ± 1.70,
         // r = 0.54699 ± 0.00558, B = 71.58 ± 2.93, midpoint 7.808 h,
         // SSE 194.33, residual sd 3.485. Tolerances: half a unit in the last
         // quoted digit.
@@ -919,7 +919,7 @@ mod tests {
     #[test]
     fn carlson_fit_beats_pearls_published_curve() {
         // Pearl's published logistic y = 665 / (1 + e^(4.1896 − 0.5355 t))
-        // (FACTS.md, [memory]): a least-squares fit must not have a larger
+        // (REFERENCES.md, [memory]): a least-squares fit must not have a larger
         // SSE than any other curve of the family.
         let fit = fit_logistic(&hours(), &CARLSON, None).unwrap();
         let pearl: f64 = hours()
@@ -935,7 +935,7 @@ mod tests {
 
     #[test]
     fn carlson_cramer_rao() {
-        // FACTS.md: Cramér–Rao sds on the Carlson grid at the fitted curve
+        // REFERENCES.md: Cramér–Rao sds on the Carlson grid at the fitted curve
         // with noise sd 3.485: K 1.706, r 0.00559, midpoint 0.0224 h. Those
         // quoted figures sit about 0.2 % above the same document's
         // least-squares sds (K 1.70, r 0.00558), which are mathematically the

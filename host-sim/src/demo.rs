@@ -578,7 +578,7 @@ mod tests {
         assert_eq!(report.readings.len(), 241);
         let truth = &report.summary.columns[0].summary;
         // Closed forms of the invented logistic K = 1.5, r = 0.7, t_m = 8
-        // (FACTS.md, logistic definitions): doubling ln 2 / r, time to 90 %
+        // (REFERENCES.md, logistic definitions): doubling ln 2 / r, time to 90 %
         // t_m + ln 9 / r. Lag on ln OD from the first reading t0 (≈ 0):
         // t_m − ln(K / y(t0)) / r − t0 = −ln(1 + e^(−r (t_m − t0))) / r,
         // about −0.0053 h: a logistic has (almost) no lag.

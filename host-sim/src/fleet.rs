@@ -346,7 +346,7 @@ pub fn run_stream(c: &Culture, stream: Stream, seed: u64, run: u64) -> StreamRun
     let true_rate = truth.max_specific_rate_per_h();
     let first_h = g.time_h.first().copied().unwrap_or(c.start_h);
     // Lag on ln OD from the first reading: Baranyi's λ (Baranyi & Roberts
-    // 1994, FACTS.md) for the lag stream; for the logistic the line
+    // 1994, REFERENCES.md) for the lag stream; for the logistic the line
     // ln K − r (t_m − t) meets the starting level at
     // t0 − ln(1 + e^(−r (t_m − t0))) / r, just before the first reading.
     let true_lag_h = match stream {

@@ -212,7 +212,7 @@ fn a_whole_culture_gets_an_estimate_an_alert_and_a_batch_fit() {
     );
     let s: Value = serde_json::from_str(&std::fs::read_to_string(&summary).unwrap()).unwrap();
     // The invented truth: capacity 1.2 OD, rate 0.8 per hour; 90 % of the
-    // capacity at 7 + ln 9 / 0.8 = 9.75 h (FACTS.md, logistic definitions).
+    // capacity at 7 + ln 9 / 0.8 = 9.75 h (REFERENCES.md, logistic definitions).
     let cap = s["capacity"].as_f64().unwrap();
     assert!((cap - 1.2).abs() < 0.03, "{cap}");
     let rate = s["rate_per_h"].as_f64().unwrap();

@@ -121,7 +121,7 @@ pub fn run_logistic_f32<const N: usize>(
 
 /// The maximum specific growth rate of a logistic read from `t0_h` on: the
 /// largest d ln y/dt = r (1 − y/K) over the run, at its first reading
-/// (FACTS.md: the per-capita rate of the logistic is r (1 − y/K)).
+/// (REFERENCES.md: the per-capita rate of the logistic is r (1 − y/K)).
 pub fn logistic_mu_max(curve: &Logistic<f64>, t0_h: f64) -> f64 {
     curve.rate_per_h() * (1.0 - curve.value(t0_h) / curve.capacity())
 }
@@ -129,7 +129,7 @@ pub fn logistic_mu_max(curve: &Logistic<f64>, t0_h: f64) -> f64 {
 /// Cramér–Rao standard deviations of capacity, rate and midpoint for the
 /// logistic on the given times with per-reading sd = floor + fraction × y:
 /// the inverse of the Fisher information `JᵀWJ`, with the partial derivatives
-/// of the logistic listed in the project's FACTS.md (Cramér–Rao bound for
+/// of the logistic listed in the project's REFERENCES.md (Cramér–Rao bound for
 /// nonlinear regression with Gaussian noise). Inverted by 3×3 cofactors.
 pub fn cramer_rao_sd(curve: &Logistic<f64>, times: &[f64], floor: f64, fraction: f64) -> [f64; 3] {
     let (k, r, tm) = (curve.capacity(), curve.rate_per_h(), curve.midpoint_h());
