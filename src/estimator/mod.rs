@@ -252,27 +252,15 @@ impl<T: Real, const N: usize, const P: usize, F: OnlineFamily<T, P>> Estimator<T
     /// A restart (dilution, clock reset): a new culture in the same vessel,
     /// so the blank (configured or measured) and the learnt noise model stay.
     fn restart(&mut self) {
-        let kept = (
-            self.blank,
-            self.blank_sd,
-            self.blank_source,
-            self.blank_count,
-            self.blank_mean,
-            self.blank_m2,
-            self.noise,
-            self.learner,
-        );
-        *self = Self::new(self.config);
-        (
-            self.blank,
-            self.blank_sd,
-            self.blank_source,
-            self.blank_count,
-            self.blank_mean,
-            self.blank_m2,
-            self.noise,
-            self.learner,
-        ) = kept;
+        let old = core::mem::replace(self, Self::new(self.config));
+        self.blank = old.blank;
+        self.blank_sd = old.blank_sd;
+        self.blank_source = old.blank_source;
+        self.blank_count = old.blank_count;
+        self.blank_mean = old.blank_mean;
+        self.blank_m2 = old.blank_m2;
+        self.noise = old.noise;
+        self.learner = old.learner;
     }
 
     /// Feeds one blank reading: the medium alone, read before inoculation
